@@ -44,7 +44,7 @@ Materials
 ---------
 ``materials:`` as a symbol mapping keeps the symbols. As a list, symbols are given by the real
 index at ``reference_nm``, highest first: two materials are ``H``, ``L``; three are ``H``, ``M``,
-``L``; more are ``M1``, ``M2``, … (give a mapping to choose the symbols yourself).
+``L``; four or more are ``A``, ``B``, ``C``, … (give a mapping to choose the symbols yourself).
 
 Tolerances
 ----------
@@ -60,11 +60,13 @@ import difflib
 import math
 import re
 from dataclasses import dataclass, field
+from pathlib import Path
 
 import numpy as np
 
 from .errors import InputError
 from .materials import Material, material_from_spec
+from .notation import check_symbol_name
 from .stack import AIR, Layer, Stack
 
 __all__ = [
@@ -550,20 +552,17 @@ def _sub_lines(lines, prefix):
 
 
 def _stack_from_mapping(data, ctx, prefix):
-    """Build a Stack from a stack-file mapping via the stack-file loader, keys under ``prefix``."""
+    """Build a Stack from a stack-file mapping via the stack-file loader, keys under ``prefix``.
+
+    ``layers`` (or ``design``) may be absent: a spec's stack gives the media.
+    """
     try:
         from .io.stack_file import stack_from_mapping
-    except ImportError:  # the stack-file loader is not there yet: media-only reader
-        stack_from_mapping = None
-    if stack_from_mapping is None:
+    except ImportError:  # pragma: no cover - the stack-file loader ships with the package
         return _media_only_stack(data, ctx, prefix)
-    try:
-        return stack_from_mapping(data, file=ctx.file, lines=_sub_lines(ctx.lines, prefix))
-    except InputError as exc:
-        key = _join(prefix, exc.key) if exc.key and not exc.key.startswith("[") \
-            else prefix + (exc.key or "")
-        raise InputError(exc.message, file=ctx.file, key=key,
-                         line=exc.line if exc.line else ctx.line(key)) from None
+    base_dir = None if ctx.file is None else Path(ctx.file).parent
+    return stack_from_mapping(data, file=ctx.file, lines=ctx.lines, key_prefix=prefix,
+                              require_layers=False, base_dir=base_dir)
 
 
 def _media_only_stack(data, ctx, prefix):
@@ -618,9 +617,10 @@ def _parse_materials(data, ctx, reference_nm):
             raise ctx.error("materials", "expected at least one material")
         out = {}
         for sym, obj in data.items():
-            if not isinstance(sym, str) or not re.fullmatch(r"[A-Za-z][A-Za-z0-9_]*", sym):
-                raise ctx.error(_join("materials", sym),
-                                f"symbol {sym!r} must be a name such as H, L or M1")
+            try:
+                check_symbol_name(sym)
+            except InputError as exc:
+                raise ctx.error(_join("materials", sym), exc.message) from None
             if isinstance(obj, dict) and not ({"n", "k"} >= set(obj)):
                 ctx.known_keys(obj, _join("materials", sym), ("n", "k"), "an inline material")
             out[sym] = ctx.material(obj, _join("materials", sym))
@@ -647,8 +647,10 @@ def _parse_materials(data, ctx, reference_nm):
         syms = ["H", "L"]
     elif len(mats) == 3:
         syms = ["H", "M", "L"]
+    elif len(mats) <= 26:
+        syms = [chr(ord("A") + j) for j in range(len(mats))]
     else:
-        syms = [f"M{j + 1}" for j in range(len(mats))]
+        raise ctx.error("materials", f"{len(mats)} materials is more than 26 symbols")
     return {s: mats[i] for s, i in zip(syms, order)}
 
 
@@ -667,8 +669,8 @@ def _parse_fixed(data, ctx, template):
         if not items:
             out.append(())
             continue
-        sub = {"incident": {"n": 1.0}, "substrate": {"n": 1.5},
-               "reference_nm": template.reference_nm, "layers": items}
+        sub = {"substrate": {"n": 1.5}, "reference_nm": template.reference_nm,
+               "layers": items}
         try:
             st = _stack_from_mapping(sub, _Ctx(ctx.file, _relines(ctx.lines, key, "layers")),
                                      "")
@@ -697,29 +699,11 @@ def _parse_start(data, ctx, materials):
                                  f"got {data!r}")
     if not materials:
         raise ctx.error("start", "'start' needs 'materials' to say what its symbols are")
+    from .notation import parse_notation
     try:
-        from .io.notation import parse_notation  # written by the stack-file issue
-    except ImportError:
-        parse_notation = None
-    if parse_notation is not None:
-        try:
-            parse_notation(data, symbols=set(materials))
-        except InputError as exc:
-            raise ctx.error("start", exc.message) from None
-        except TypeError:
-            parse_notation = None
-    if parse_notation is None:
-        syms = sorted(materials, key=len, reverse=True)
-        rest = data
-        for s in syms:
-            rest = rest.replace(s, " ")
-        bad = re.findall(r"[A-Za-z_]+", rest)
-        if bad:
-            raise ctx.error("start", f"unknown symbol '{bad[0]}' in '{data}' "
-                                     f"(materials define {', '.join(materials)})")
-        if re.search(r"[^0-9.\s()^*]", rest):
-            ch = re.search(r"[^0-9.\s()^*]", rest).group()
-            raise ctx.error("start", f"unexpected '{ch}' in '{data}'")
+        parse_notation(data, materials.keys(), key="start")
+    except InputError as exc:
+        raise ctx.error("start", exc.message) from None
     return data.strip()
 
 

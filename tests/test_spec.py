@@ -253,3 +253,20 @@ class TestValidationMessages:
         with pytest.raises(InputError, match="colour requirements need the colour module"):
             spec_from_mapping({"stack": {"substrate": {"n": 1.5}},
                                "requirements": [{"colour": "<= 2", "band_nm": [380, 780]}]})
+
+
+class TestNestedMessages:
+    def test_stack_key_typo_is_prefixed(self, tmp_path):
+        e = _err(tmp_path, _replace("substrate: {n: 1.52}", "substrat: {n: 1.52}"))
+        assert e.key == "stack.substrat" and e.line == 1
+        assert "did you mean 'substrate'" in str(e)
+
+    def test_fixed_layer_error_names_its_place(self, tmp_path):
+        e = _err(tmp_path, _replace("requirements:\n", "fixed:\n  bottom:\n"
+                                    "    - {material: {n: 1.6}, nm: -5}\nrequirements:\n"))
+        assert e.key == "fixed.bottom[0].nm" and e.line == 6
+
+    def test_symbols_are_single_letters(self, tmp_path):
+        e = _err(tmp_path, _replace("{H: {n: 2.35}, L: {n: 1.46}}",
+                                    "{HI: {n: 2.35}, L: {n: 1.46}}"))
+        assert e.key == "materials.HI" and "single letter" in str(e)
