@@ -1,0 +1,1 @@
+"""Colorimetry of coatings and films, colour requirements, thickness from colour."""
