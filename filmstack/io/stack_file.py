@@ -68,6 +68,19 @@ _NUMBER_WITH_UNIT = re.compile(
     r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([^\d\s].*?)?\s*$")
 
 
+def _suggest(word: str, allowed) -> str | None:
+    """The allowed key a typo most likely meant: same letters in another case or order
+    (``Nm``, ``mn``), else the closest by :mod:`difflib` (``substrat``)."""
+    for a in allowed:
+        if a.lower() == word.lower():
+            return a
+    for a in allowed:
+        if sorted(a.lower()) == sorted(word.lower()):
+            return a
+    close = difflib.get_close_matches(word, allowed, n=1, cutoff=0.6)
+    return close[0] if close else None
+
+
 def _type_name(value) -> str:
     if value is None:
         return "nothing"
@@ -117,8 +130,8 @@ class _Reader:
     def keys(self, mapping: Mapping, allowed, key: str) -> None:
         for k in mapping:
             if k not in allowed:
-                close = difflib.get_close_matches(k, allowed, n=1, cutoff=0.6)
-                hint = f" (did you mean '{close[0]}'?)" if close else ""
+                close = _suggest(k, allowed)
+                hint = f" (did you mean '{close}'?)" if close else ""
                 raise self.error(f"unknown key '{k}'{hint}; allowed keys: {', '.join(allowed)}",
                                  join_key(key, k))
 
