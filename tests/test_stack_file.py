@@ -367,6 +367,10 @@ class TestMistakes:
         err = error_of(tmp_path, "substrate: {n: 1.5, k: -0.1}\nlayers: []\n")
         assert err.key == "substrate.k" and "must be >= 0" in str(err)
 
+    def test_inline_index_not_positive(self, tmp_path):
+        err = error_of(tmp_path, "substrate: {n: 0}\nlayers: []\n")
+        assert err.key == "substrate.n" and err.line == 1 and "must be > 0, got 0" in str(err)
+
     def test_absorbing_incident_medium(self, tmp_path):
         err = error_of(tmp_path, "incident: metal\nsubstrate: glass\nlayers: []\n")
         assert err.key == "incident" and "must not absorb" in str(err)

@@ -152,11 +152,9 @@ class _Reader:
         x = float(value)
         if not math.isfinite(x):
             raise self.error(f"expected a finite number in {unit}, got {value!r}", key)
-        if minimum is not None:
-            if strict and not x > minimum:
-                raise self.error(f"must be > {minimum:g} {unit}, got {value!r}".rstrip(), key)
-            if not strict and not x >= minimum:
-                raise self.error(f"must be >= {minimum:g} {unit}, got {value!r}", key)
+        if minimum is not None and not (x > minimum if strict else x >= minimum):
+            bound = f"{minimum:g} {unit}".rstrip()
+            raise self.error(f"must be {'>' if strict else '>='} {bound}, got {value!r}", key)
         return x
 
     # -- materials --------------------------------------------------------------------------
