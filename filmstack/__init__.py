@@ -8,6 +8,8 @@ Public names (``import filmstack``): the data model (:class:`Stack`, :class:`Lay
 from .errors import ExtrapolationWarning, FilmstackError, InputError, OutOfRangeError
 from .materials import Constant, Material, get_material, list_materials, material_from_spec
 from .stack import AIR, FreeParameter, Layer, Stack, nm_to_qwot, qwot_to_nm
+from .response import (FieldProfile, PhaseResponse, Spectrum, SpectrumDerivatives, field_profile,
+                       phase_response, spectrum, spectrum_derivatives)
 
 __version__ = "0.1.0"
 
@@ -15,4 +17,6 @@ __all__ = [
     "AIR", "Constant", "ExtrapolationWarning", "FilmstackError", "FreeParameter", "InputError",
     "Layer", "Material", "OutOfRangeError", "Stack", "get_material", "list_materials",
     "material_from_spec", "nm_to_qwot", "qwot_to_nm",
+    "FieldProfile", "PhaseResponse", "Spectrum", "SpectrumDerivatives", "field_profile",
+    "phase_response", "spectrum", "spectrum_derivatives",
 ]

@@ -18,6 +18,9 @@ Conventions
   that of the incident wave: T = Re(η_exit) |E_exit,tan|² / (η0 |E_inc,tan|²), valid for an
   absorbing exit medium too; A = 1 − R − T is what the layers absorb.
 
+With exp(−iωt) and Im δ >= 0 the characteristic matrix carries −i off the diagonal (the
+complex conjugate of the matrix written for exp(+iωt) and N = n − ik).
+
 Symbols
 -------
 ====================  ===========================  =====================================
@@ -33,7 +36,7 @@ k_z,j = 2π N_j cosθ_j/λ ``kz``                      normal wavenumber (rad/nm
 .. math::
 
     \begin{bmatrix}B\\C\end{bmatrix} = \prod_{j=L-1}^{0}
-    \begin{bmatrix}\cos δ_j & i \sin δ_j/η_j\\ i η_j \sin δ_j & \cos δ_j\end{bmatrix}
+    \begin{bmatrix}\cos δ_j & −i \sin δ_j/η_j\\ −i η_j \sin δ_j & \cos δ_j\end{bmatrix}
     \begin{bmatrix}1\\η_{exit}\end{bmatrix},\qquad
     r = \frac{η_0 B − C}{η_0 B + C},\qquad
     T = \frac{4 η_0 \,\mathrm{Re}(η_{exit})}{|η_0 B + C|^2}
@@ -189,14 +192,14 @@ def _forward(problem: Problem, terms, pols, store=False):
             st = state[p]
             if real:
                 Br, Bi, Cr, Ci = st
-                st[0] = c * Br - so * Ci
-                st[1] = c * Bi + so * Cr
-                st[2] = c * Cr - es * Bi
-                st[3] = c * Ci + es * Br
+                st[0] = c * Br + so * Ci
+                st[1] = c * Bi - so * Cr
+                st[2] = c * Cr + es * Bi
+                st[3] = c * Ci - es * Br
             else:
                 B, C = st
-                st[0] = c * B + 1j * (so * C)
-                st[1] = c * C + 1j * (es * B)
+                st[0] = c * B - 1j * (so * C)
+                st[1] = c * C - 1j * (es * B)
                 ls[p] = ls[p] + ay
             if (j + 1) % _RENORM_EVERY == 0:
                 if real:
@@ -352,8 +355,8 @@ def _adjoint(problem, terms, p, stored, eta0):
         yield j, wn, wd
         e = eta_u[inv[j]]
         c, s = cos_all[j], sin_all[j]
-        ies = 1j * e * s
-        iso = 1j * s / e
+        ies = -1j * e * s
+        iso = -1j * s / e
         wn = [wn[0] * c + wn[1] * ies, wn[0] * iso + wn[1] * c]
         wd = [wd[0] * c + wd[1] * ies, wd[0] * iso + wd[1] * c]
         if (L - j) % _RENORM_EVERY == 0:
@@ -385,7 +388,7 @@ def _derivatives_complex(problem, terms, p, stored, D):
         u = problem.inv[j]
         Bj, Cj = v[j + 1, 0], v[j + 1, 1]
         e = eta_u[u]
-        k1, k2 = 1j * Cj / e, 1j * e * Bj
+        k1, k2 = -1j * Cj / e, -1j * e * Bj
         kz_D = kz_u[u] / (wd[0] * Bj + wd[1] * Cj)
         yield j, kz_D * (wn[0] * k1 + wn[1] * k2), kz_D * (wd[0] * k1 + wd[1] * k2)
 
@@ -417,12 +420,12 @@ def _derivatives_real(problem, terms, p, stored, D):
         Si = p1 * cre - p2 * ebi
         Qr = -q1 * cre - q2 * ebi
         Qi = -q1 * cie + q2 * ebr
-        scale = kz_u[u] * np.exp(lsv[j + 1] + lsw - lsv[L]) * invD
+        scale = -kz_u[u] * np.exp(lsv[j + 1] + lsw - lsv[L]) * invD   # K = −i[[0, 1/η], [η, 0]]
         yield j, scale * ((Sr - Qr) + 1j * (Si - Qi)), scale * ((Sr + Qr) + 1j * (Si + Qi))
         c, s = cos_all[j], sin_all[j]
         es, so = e * s, s / e
-        p1, p2 = c * p1 - es * p2, c * p2 + so * p1
-        q1, q2 = c * q1 + es * q2, c * q2 - so * q1
+        p1, p2 = c * p1 + es * p2, c * p2 - so * p1
+        q1, q2 = c * q1 - es * q2, c * q2 + so * q1
         if (L - j) % _RENORM_EVERY == 0:
             m = max(float(np.max(np.abs(a))) for a in (p1, p2, q1, q2))
             if m > 1e100:
@@ -437,7 +440,7 @@ def coherent_derivatives(n_layers, thickness_nm, n_incident, n_exit, wavelength_
     Parameters are those of :func:`coherent_response`. A forward sweep stores the tangential
     fields [B, C] at every interface; a backward sweep carries the covectors [η0, ∓1]·P (P the
     product of the characteristic matrices above an interface). Since dM_j/dd_j = k_z,j M_j K_j
-    with K_j = [[0, i/η_j], [i η_j, 0]],
+    with K_j = [[0, −i/η_j], [−i η_j, 0]],
 
     .. math:: \\frac{∂(η_0 B ∓ C)}{∂d_j} = k_{z,j}\\, w_∓^{(j+1)} K_j v^{(j+1)}
 
@@ -537,7 +540,8 @@ def stack_vectors(n_layers, thickness_nm, n_incident, n_exit, wavelength_nm, ang
       - ``w_num``, ``w_den`` (..., L+1, 2, A, W): covectors with w_num[j]·v[j] = r and
         w_den[j]·v[j] = 1 at every interface; inside a layer w(z) = w[j+1] M_j(k_z,j (d_j − z)).
         Inserting a layer of admittance η_n and wavenumber k_n, ε thin, at a point changes r by
-        ε k_n (w_num K_n v − r w_den K_n v), K_n = [[0, i/η_n], [i η_n, 0]].
+        ε k_n (w_num K_n v − r w_den K_n v), K_n = [[0, −i/η_n], [−i η_n, 0]], and
+        M_j(δ) = [[cos δ, −i sin δ/η_j], [−i η_j sin δ, cos δ]] (time dependence exp(−iωt)).
       - ``r`` (..., A, W).
 
     Under a very thick metal the normalised fields underflow towards 0 and the covectors grow
