@@ -77,8 +77,18 @@ def _pop_debug(args: list[str]) -> tuple[bool, list[str]]:
     return debug, [a for a in head if a != "--debug"] + tail
 
 
+class _Interrupted(Exception):
+    """Ctrl-C inside a command (typer would turn a KeyboardInterrupt into a silent exit 130)."""
+
+
 class _FilmstackGroup(TyperGroup):
     """The root group: maps exceptions to exit codes and one-line messages."""
+
+    def invoke(self, ctx):
+        try:
+            return super().invoke(ctx)
+        except KeyboardInterrupt:
+            raise _Interrupted() from None
 
     def main(self, args=None, prog_name=None, complete_var=None, standalone_mode=True,
              **extra):
@@ -115,7 +125,7 @@ class _FilmstackGroup(TyperGroup):
         except _cx.ClickException as exc:   # e.g. a file option click could not open
             _error_line(exc.format_message())
             return EXIT_INPUT
-        except (KeyboardInterrupt, typer.Abort):
+        except (_Interrupted, KeyboardInterrupt, typer.Abort):
             sys.stderr.write(f"\n{_PROG}: interrupted\n")
             return EXIT_INTERRUPTED
         except typer.Exit as exc:
