@@ -393,8 +393,35 @@ def _derivatives_complex(problem, terms, p, stored, D):
         yield j, kz_D * (wn[0] * k1 + wn[1] * k2), kz_D * (wd[0] * k1 + wd[1] * k2)
 
 
+def _real_to_ratios(parts, D, r, T, direct):
+    """Turn the real kernel's terms into (j, dN/D, dD/D); or, with ``direct`` = (dR, dT, start,
+    stop), write dR and dT straight into those arrays in real arithmetic and yield nothing.
+
+    dR = 2 Re(r* dN/D) − 2|r|² Re(dD/D) and dT = −2 T Re(dD/D), expanded over Sr, Si, Qr, Qi.
+    """
+    invD = 1.0 / D
+    if direct is None:
+        for j, g, Sr, Si, Qr, Qi in parts:
+            gD = g * invD
+            yield j, gD * ((Sr - Qr) + 1j * (Si - Qi)), gD * ((Sr + Qr) + 1j * (Si + Qi))
+        return
+    dR, dT, start, stop = direct
+    a = np.conj(r) * invD
+    r2 = r.real ** 2 + r.imag ** 2
+    ir, ii = invD.real, invD.imag
+    c1, c2 = a.real - r2 * ir, -a.real - r2 * ir
+    c3, c4 = -a.imag + r2 * ii, a.imag + r2 * ii
+    for j, g, Sr, Si, Qr, Qi in parts:
+        dR[j, start:stop] = 2.0 * g * (c1 * Sr + c2 * Qr + c3 * Si + c4 * Qi)
+        dT[j, start:stop] = -2.0 * T * g * (ir * (Sr + Qr) - ii * (Si + Qi))
+    return
+
+
 def _derivatives_real(problem, terms, p, stored, D):
-    """Yield (j, dN/D, dD/D) for every layer j when all layers are lossless and propagating.
+    """Yield (j, g, Sr, Si, Qr, Qi) for every layer j when all layers are lossless and propagating.
+
+    With N = η0 B − C and D = η0 B + C at the top: ∂N/∂d_j = g·((Sr − Qr) + i(Si − Qi)) and
+    ∂D/∂d_j = g·((Sr + Qr) + i(Si + Qi)), all real arrays (g includes k_z,j and the scale).
 
     The covectors [η0, ∓1]·P are carried as two real pairs: (p1, p2) from the η0 part and
     (q1, q2) from the unit part, w_∓ = [p1 ∓ i q1, i p2 ∓ q2]; the fields as real (Br, Bi, Cr,
@@ -406,7 +433,6 @@ def _derivatives_real(problem, terms, p, stored, D):
     eta_u = terms["eta_u"][p].real
     kz_u = terms["kz_u"].real
     eta0 = terms["eta0"][p].real
-    invD = 1.0 / D
     p1, p2 = eta0.copy(), np.zeros_like(eta0)
     q1, q2 = np.zeros_like(eta0), np.ones_like(eta0)
     lsw = 0.0
@@ -420,8 +446,9 @@ def _derivatives_real(problem, terms, p, stored, D):
         Si = p1 * cre - p2 * ebi
         Qr = -q1 * cre - q2 * ebi
         Qi = -q1 * cie + q2 * ebr
-        scale = -kz_u[u] * np.exp(lsv[j + 1] + lsw - lsv[L]) * invD   # K = −i[[0, 1/η], [η, 0]]
-        yield j, scale * ((Sr - Qr) + 1j * (Si - Qi)), scale * ((Sr + Qr) + 1j * (Si + Qi))
+        # K = −i[[0, 1/η], [η, 0]]: dN = g·((Sr − Qr) + i(Si − Qi)), dD = g·((Sr + Qr) + i(Si + Qi))
+        g = -kz_u[u] * np.exp(lsv[j + 1] + lsw - lsv[L])
+        yield j, g, Sr, Si, Qr, Qi
         c, s = cos_all[j], sin_all[j]
         es, so = e * s, s / e
         p1, p2 = c * p1 + es * p2, c * p2 - so * p1
@@ -478,18 +505,18 @@ def coherent_derivatives(n_layers, thickness_nm, n_incident, n_exit, wavelength_
             r, t, Tp, D = _top(terms, p, B, C, ls)
             R[p][start:stop] = np.abs(r) ** 2
             T[p][start:stop] = Tp
-            kernel = _derivatives_real if stored[-1] else _derivatives_complex
-            for j, dN_D, dD_D in kernel(problem, terms, p, stored, D):
+            if stored[-1]:
+                derivs = _real_to_ratios(_derivatives_real(problem, terms, p, stored, D), D,
+                                         r, Tp, None if amp else (dR[p], dT[p], start, stop))
+            else:
+                derivs = _derivatives_complex(problem, terms, p, stored, D)
+            for j, dN_D, dD_D in derivs:
+                drj = dN_D - r * dD_D
+                dR[p][j, start:stop] = 2.0 * (np.conj(r) * drj).real
+                dT[p][j, start:stop] = -2.0 * Tp * dD_D.real
                 if amp:
-                    drj = dN_D - r * dD_D
-                    dR[p][j, start:stop] = 2.0 * (np.conj(r) * drj).real
                     dr_all[j, start:stop] = drj
                     dt_all[j, start:stop] = -t * dD_D
-                else:
-                    # dR = 2 Re(r* dN/D) − 2 |r|² Re(dD/D)
-                    dR[p][j, start:stop] = 2.0 * ((np.conj(r) * dN_D).real
-                                                  - (r.real ** 2 + r.imag ** 2) * dD_D.real)
-                dT[p][j, start:stop] = -2.0 * Tp * dD_D.real
             if amp:
                 r_all[start:stop] = r
                 t_all[start:stop] = t
