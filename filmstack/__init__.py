@@ -8,6 +8,7 @@ Public names (``import filmstack``): the data model (:class:`Stack`, :class:`Lay
 from .errors import ExtrapolationWarning, FilmstackError, InputError, OutOfRangeError
 from .materials import Constant, Material, get_material, list_materials, material_from_spec
 from .stack import AIR, FreeParameter, Layer, Stack, nm_to_qwot, qwot_to_nm
+from .io.stack_file import load_stack, save_stack
 from .response import (FieldProfile, PhaseResponse, Spectrum, SpectrumDerivatives, field_profile,
                        phase_response, spectrum, spectrum_derivatives)
 
@@ -18,5 +19,5 @@ __all__ = [
     "Layer", "Material", "OutOfRangeError", "Stack", "get_material", "list_materials",
     "material_from_spec", "nm_to_qwot", "qwot_to_nm",
     "FieldProfile", "PhaseResponse", "Spectrum", "SpectrumDerivatives", "field_profile",
-    "phase_response", "spectrum", "spectrum_derivatives",
+    "phase_response", "spectrum", "spectrum_derivatives", "load_stack", "save_stack",
 ]
