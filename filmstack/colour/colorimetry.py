@@ -228,30 +228,46 @@ def XYZ_to_xyY(XYZ) -> np.ndarray:
     return xyY
 
 
-def XYZ_to_Lab(XYZ, white_XYZ) -> np.ndarray:
-    """CIE 1976 L*a*b* (..., 3) of XYZ (..., 3) relative to the white XYZ_n (3,) (same scale).
-
-    ``white_XYZ`` is usually :func:`white_point_XYZ` (the perfect reflecting diffuser) or the
-    colour of a bare substrate. References: CIE 15:2018 §8.2.1.
-    """
-    import colour
-
-    xyz = np.asarray(XYZ, dtype=float)
+def _white(white_XYZ) -> np.ndarray:
     wn = np.asarray(white_XYZ, dtype=float)
-    if wn.shape != (3,) or not (wn[1] > 0):
-        raise InputError(f"the reference white must be XYZ of shape (3,) with Y > 0, got {wn!r}")
-    xy_n = wn[:2] / wn.sum()
-    return np.asarray(colour.XYZ_to_Lab(xyz / wn[1], illuminant=xy_n), dtype=float)
+    if wn.ndim == 0 or wn.shape[-1] != 3 or not np.all(wn[..., 1] > 0):
+        raise InputError(f"the reference white must be XYZ of shape (..., 3) with Y > 0, "
+                         f"got {white_XYZ!r}")
+    return wn
+
+
+def XYZ_to_Lab(XYZ, white_XYZ) -> np.ndarray:
+    """CIE 1976 L*a*b* (..., 3) of XYZ (..., 3) relative to the white XYZ_n (same scale).
+
+    ``white_XYZ`` is (3,) — usually :func:`white_point_XYZ` (the perfect reflecting diffuser)
+    or the colour of a bare substrate — or any shape broadcasting with ``XYZ`` (one white per
+    angle, say). Written out here (a few array operations, no per-call overhead: the thickness
+    search calls it in a loop) and checked against colour-science's ``XYZ_to_Lab``.
+
+    .. math::
+        L^* = 116 f(Y/Y_n) - 16,\\ a^* = 500 [f(X/X_n) - f(Y/Y_n)],\\
+        b^* = 200 [f(Y/Y_n) - f(Z/Z_n)],
+
+    with f(t) = t^(1/3) for t > (6/29)³, else t / (3 (6/29)²) + 4/29.
+    References: CIE 15:2018 §8.2.1.
+    """
+    xyz = np.asarray(XYZ, dtype=float)
+    wn = _white(white_XYZ)
+    t = xyz / wn
+    eps = (6.0 / 29.0) ** 3
+    f = np.where(t > eps, np.cbrt(t), t / (3.0 * (6.0 / 29.0) ** 2) + 4.0 / 29.0)
+    fx, fy, fz = f[..., 0], f[..., 1], f[..., 2]
+    return np.stack([116.0 * fy - 16.0, 500.0 * (fx - fy), 200.0 * (fy - fz)], axis=-1)
 
 
 def Lab_to_XYZ(Lab, white_XYZ) -> np.ndarray:
-    """Inverse of :func:`XYZ_to_Lab`: XYZ (..., 3) on the scale of ``white_XYZ`` (3,)."""
+    """Inverse of :func:`XYZ_to_Lab`: XYZ (..., 3) on the scale of ``white_XYZ`` (..., 3)."""
     import colour
 
-    wn = np.asarray(white_XYZ, dtype=float)
-    xy_n = wn[:2] / wn.sum()
+    wn = _white(white_XYZ)
+    xy_n = wn[..., :2] / wn.sum(axis=-1, keepdims=True)
     return np.asarray(colour.Lab_to_XYZ(np.asarray(Lab, dtype=float), illuminant=xy_n),
-                      dtype=float) * wn[1]
+                      dtype=float) * wn[..., 1:2]
 
 
 def Lab_to_LCh(Lab) -> np.ndarray:
