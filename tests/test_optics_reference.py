@@ -336,3 +336,74 @@ class TestThickSubstrate:
         rho = ((ns - 1) / (ns + 1)) ** 2
         assert sp.T[0, 0] == pytest.approx(1 - rho, abs=1e-14)
         assert sp.R[0, 0] == pytest.approx(rho, abs=1e-14)
+
+
+class TestStability:
+    @pytest.mark.parametrize("pol", ["s", "p"])
+    def test_thick_metal_layer(self, pol):
+        # 10 µm of a metal (N = 0.05 + 3.5i): the film is opaque (single-pass amplitude
+        # exp(−2π·3.5·10⁴/λ) underflows), so R is that of the semi-infinite metal — Fresnel with a
+        # complex index (Born & Wolf §14.2) — T = 0 and A = 1 − R (Poynting's theorem). A naive
+        # matrix product overflows here (cosh of ~400).
+        N = 0.05 + 3.5j
+        st = Stack(incident=AIR, substrate=medium(1.52),
+                   layers=[Layer(medium(N.real, N.imag), 10_000.0)])
+        ang = np.array([0.0, 30.0, 70.0])
+        sp = filmstack.spectrum(st, [400.0, 633.0, 1064.0], ang, pol)
+        rs, rp, *_ = fresnel(1.0, N, ang)
+        R_metal = np.abs(rs if pol == "s" else rp) ** 2
+        assert np.all(np.isfinite(sp.R)) and np.all(np.isfinite(sp.r))
+        np.testing.assert_allclose(sp.R, np.repeat(R_metal[:, None], 3, 1), rtol=0, atol=1e-13)
+        # T of the order of the single-pass power attenuation exp(−2 Im(k_z) d) ≤ e^(−413),
+        # which underflows at the shorter wavelengths
+        assert np.all(sp.T >= 0) and np.all(sp.T < 1e-170)
+        np.testing.assert_allclose(sp.A, 1 - sp.R, rtol=0, atol=1e-15)
+
+    @pytest.mark.parametrize("pol", ["s", "p"])
+    @pytest.mark.parametrize("gap_nm", [30.0, 150.0, 600.0, 3000.0, 40_000.0])
+    def test_frustrated_total_internal_reflection(self, pol, gap_nm):
+        # Frustrated TIR: an air gap of thickness d between two glass prisms (n1 = 1.5), light
+        # at θ1 = 50° beyond the critical angle. In the gap the wave is evanescent:
+        # k_z = iκ, κ = k0 sqrt(n1² sin²θ1 − n2²). Derivation (as for tunnelling through a
+        # rectangular barrier, e.g. Griffiths, Introduction to Quantum Mechanics, §2.6, from
+        # memory; for the optical case S. Zhu et al., Am. J. Phys. 54, 601 (1986), from memory):
+        # with outer admittance η1 (real) and gap admittance η2 = iγ (γ real), matching the
+        # tangential fields at both faces gives |η1 B + C|² = 4η1² + (γ + η1²/γ)² sinh²(κd), so
+        #     T = 1 / (1 + ((η1² + γ²)/(2 η1 γ))² sinh²(κd)),
+        # s: η1 = n1 cosθ1, γ = κ/k0; p: η1 = n1/cosθ1, γ = −n2²/(κ/k0) (|γ| enters only).
+        # Nothing absorbs, so R = 1 − T.
+        n1, n2, th, wl = 1.5, 1.0, 50.0, 633.0
+        st = Stack(incident=medium(n1), substrate=medium(n1),
+                   layers=[Layer(medium(n2), gap_nm)])
+        sp = filmstack.spectrum(st, [wl], th, pol)
+        t = np.deg2rad(th)
+        kap = np.sqrt((n1 * np.sin(t)) ** 2 - n2 ** 2)      # κ/k0
+        if pol == "s":
+            eta1, gam = n1 * np.cos(t), kap
+        else:
+            eta1, gam = n1 / np.cos(t), n2 ** 2 / kap
+        sh2 = np.sinh(2 * np.pi / wl * kap * gap_nm) ** 2
+        T = 1.0 / (1.0 + ((eta1 ** 2 + gam ** 2) / (2 * eta1 * gam)) ** 2 * sh2)
+        assert np.isfinite(sp.R[0, 0]) and np.isfinite(sp.T[0, 0])
+        assert sp.T[0, 0] == pytest.approx(T, rel=1e-10, abs=1e-300)
+        assert sp.R[0, 0] + sp.T[0, 0] == pytest.approx(1.0, abs=1e-12)
+        if gap_nm == 30.0:
+            assert sp.T[0, 0] > 0.5                  # a thin gap lets most light through
+
+    @pytest.mark.parametrize("n0,angle,n_exit", [(1.0, 0.0, 1.52), (1.0, 60.0, 1.52),
+                                                 (2.0, 70.0, 2.5), (2.0, 70.0, 1.0)])
+    def test_500_layers(self, n0, angle, n_exit):
+        # Energy conservation R + T = 1 for a lossless stack (Born & Wolf §1.5.3; Macleod ch. 2)
+        # with 500 layers of random thickness; from n0 = 2 at 70° every 1.46 layer is evanescent
+        # (n0 sinθ0 = 1.88), the hard case for the matrix product.
+        rng = np.random.default_rng(500)
+        H, L = medium(2.35, name="H"), medium(1.46, name="L")
+        layers = [Layer(H if j % 2 == 0 else L, float(x))
+                  for j, x in enumerate(rng.uniform(20.0, 300.0, 500))]
+        st = Stack(incident=medium(n0), substrate=medium(n_exit), layers=layers)
+        wl = np.linspace(400.0, 1000.0, 61)
+        for pol in ("s", "p"):
+            sp = filmstack.spectrum(st, wl, angle, pol)
+            assert np.all(np.isfinite(sp.r)) and np.all(np.isfinite(sp.t))
+            np.testing.assert_allclose(sp.R + sp.T, 1.0, rtol=0, atol=1e-12)
+            assert np.all(sp.R >= -1e-15) and np.all(sp.T >= 0)
