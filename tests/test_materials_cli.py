@@ -1,0 +1,86 @@
+"""``filmstack materials list|show|plot`` through the real app."""
+
+import json
+
+import numpy as np
+import pytest
+from typer.testing import CliRunner
+
+from filmstack.cli import app
+from filmstack.materials import get_material, list_materials
+
+runner = CliRunner()
+
+
+def run(*args):
+    return runner.invoke(app, list(args))
+
+
+def test_list_names_every_material():
+    r = run("materials", "list", "--json")
+    assert r.exit_code == 0, r.output
+    rows = json.loads(r.stdout)
+    assert [row["name"] for row in rows] == list_materials()
+    assert all(row["source"] for row in rows)
+    assert {"name", "aliases", "model", "range_nm", "source"} <= set(rows[0])
+
+
+def test_list_table():
+    r = run("materials", "list")
+    assert r.exit_code == 0 and "fused-silica" in r.stdout and "sellmeier" in r.stdout
+
+
+def test_show_json_keys_and_values():
+    r = run("materials", "show", "silicon", "--from", "500", "--to", "700", "--step", "50",
+            "--json")
+    assert r.exit_code == 0, r.output
+    out = json.loads(r.stdout)
+    assert set(out) == {"name", "source", "wavelength_nm", "n", "k"}
+    assert out["name"] == "Si" and "Green" in out["source"]
+    assert out["wavelength_nm"] == [500.0, 550.0, 600.0, 650.0, 700.0]
+    ref = get_material("Si").nk(np.array(out["wavelength_nm"]))
+    assert np.allclose(out["n"], ref.real) and np.allclose(out["k"], ref.imag)
+
+
+@pytest.mark.parametrize("name", list_materials())
+def test_show_prints_the_source_of_every_material(name):
+    m = get_material(name)
+    lo, hi = m.range_nm
+    a = max(lo, 400.0)
+    b = min(hi, 800.0)
+    r = run("materials", "show", name, "--from", f"{a}", "--to", f"{b}", "--step", f"{b - a}")
+    assert r.exit_code == 0, r.output
+    assert "Source:" in r.stdout and m.source[:30] in " ".join(r.stdout.split())
+
+
+def test_show_out_of_range_is_bad_input():
+    r = run("materials", "show", "ZnS", "--from", "300", "--to", "500")
+    assert r.exit_code == 2
+    assert "400 to 1000 nm" in r.stderr and "--extrapolate" in r.stderr
+
+
+def test_show_unknown_name():
+    r = run("materials", "show", "TiO3")
+    assert r.exit_code == 2 and "TiO2" in r.stderr
+
+
+def test_show_user_folder(tmp_path):
+    (tmp_path / "larkspur-oxide.yaml").write_text(
+        "name: larkspur-oxide\nsource: Larkspur Optics, synthetic data (invented)\n"
+        "model: constant\nn: 1.7\n", encoding="utf-8")
+    r = run("materials", "show", "larkspur-oxide", "--materials-dir", str(tmp_path), "--json")
+    assert r.exit_code == 0, r.output
+    assert json.loads(r.stdout)["n"][0] == 1.7
+
+
+def test_plot_writes_png(tmp_path):
+    out = tmp_path / "ag.png"
+    r = run("materials", "plot", "Ag", "--from", "400", "--to", "900", "--out", str(out))
+    assert r.exit_code == 0, r.output
+    assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_plot_bad_suffix_writes_nothing(tmp_path):
+    out = tmp_path / "ag.gif"
+    r = run("materials", "plot", "Ag", "--out", str(out))
+    assert r.exit_code == 2 and not out.exists()
