@@ -318,7 +318,7 @@ class TestPlot:
         assert axes[0].get_ylabel() == "Reflectance R (%)"
         assert axes[1].get_xlabel() == "Wavelength (nm, vacuum)"
         labels = [t.get_text() for t in axes[0].get_legend().get_texts()]
-        assert labels == ["0°  s", "45°  s", "0°  p", "45°  p"]
+        assert labels == ["0°  s", "0°  p", "45°  s", "45°  p"]
         data = figure_bytes(fig, "png")
         assert png_size(data) == figure_size_px(2) == (1200, 1095)
 

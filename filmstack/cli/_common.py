@@ -283,16 +283,25 @@ def make_table(*columns: str | tuple[str, str], title: str | None = None,
     from rich.table import Table
 
     table = Table(title=title, caption=caption, box=box.SIMPLE_HEAD, title_justify="left",
-                  caption_justify="left", header_style="bold", pad_edge=False)
+                  caption_justify="left", header_style="bold", pad_edge=False,
+                  show_edge=False)
     for col in columns:
         header, justify = (col, "left") if isinstance(col, str) else col
         table.add_column(header, justify=justify)
     return table
 
 
-def print_table(table) -> None:
-    """Print a rich renderable (a table) on stdout."""
-    stdout_console().print(table)
+def print_table(table, *, title: str | None = None, caption: str | None = None) -> None:
+    """Print a rich renderable (a table) on stdout, with a title line above and a caption below.
+
+    Title and caption are printed as whole lines (wrapped at the terminal, not at the table).
+    """
+    console = stdout_console()
+    if title:
+        console.print(title, style="bold", markup=False)
+    console.print(table)
+    if caption:
+        console.print(caption, style="dim", markup=False)
 
 
 def print_cautions(*texts: str) -> None:
@@ -312,7 +321,10 @@ def fmt_pct(fraction: float, digits: int = 3) -> str:
     """A fraction 0–1 as a percent string, e.g. ``0.00312 -> '0.312'``; NaN as ``'-'``."""
     if fraction is None or not math.isfinite(fraction):
         return "-"
-    return f"{100.0 * fraction:.{digits}f}"
+    pct = 100.0 * float(fraction)
+    if abs(pct) < 0.5 * 10.0 ** -digits:
+        pct = 0.0           # no "-0.000" from round-off in 1 - R - T
+    return f"{pct:.{digits}f}"
 
 
 # --- progress --------------------------------------------------------------------------------

@@ -64,12 +64,11 @@ def _describe(stack, path: str) -> str:
             f"on {sub}{back}, light from {stack.incident.name}")
 
 
-def _summary_table(spectra, quantities, title: str, caption: str):
+def _summary_table(spectra, quantities):
     from ..io.spectra_out import band_summary
 
     table = make_table("angle", "pol", "", ("mean %", "right"), ("min %", "right"),
-                       ("at nm", "right"), ("max %", "right"), ("at nm", "right"),
-                       title=title, caption=caption)
+                       ("at nm", "right"), ("max %", "right"), ("at nm", "right"))
     wl = np.asarray(spectra[0].wavelength_nm, dtype=float)
     angles = np.atleast_1d(np.asarray(spectra[0].angle_deg, dtype=float))
     first = True
@@ -165,7 +164,8 @@ def spectrum_command(
         return
     caption = (f"{wl[0]:g}-{wl[-1]:g} nm, step {step_nm:g} nm ({wl.size} wavelengths); "
                "R, T, A in % of the incident power.")
-    print_table(_summary_table(spectra, quantities, _describe(stack, str(stack_file)), caption))
+    print_table(_summary_table(spectra, quantities), title=_describe(stack, str(stack_file)),
+                caption=caption)
     for path, _ in files:
         typer.echo(f"wrote {path}")
     print_cautions(CAUTION_MODEL)

@@ -128,15 +128,15 @@ def plot_spectrum(spectra, quantities: Sequence[str] = ("R", "T"), *, title: str
         axes = fig.subplots(len(quantities), 1, sharex=True, squeeze=False)[:, 0]
         for ax, q in zip(axes, quantities):
             allv = []
-            for s in items:
-                vals = 100.0 * np.asarray(getattr(s, q), dtype=float)
-                for ia, a in enumerate(angles):
-                    colour = PALETTE[ia % len(PALETTE)]
+            for ia, a in enumerate(angles):          # legend order: angle, then polarisation
+                colour = PALETTE[ia % len(PALETTE)]
+                for s in items:
+                    vals = 100.0 * np.asarray(getattr(s, q), dtype=float)[ia]
                     style = LINESTYLES.get(s.polarization, "-")
                     label = f"{_angle_label(a)}  {s.polarization}"
-                    ax.plot(wl, vals[ia], color=colour, linestyle=style, linewidth=1.6,
+                    ax.plot(wl, vals, color=colour, linestyle=style, linewidth=1.6,
                             label=label, solid_capstyle="round")
-                    allv.append(vals[ia])
+                    allv.append(vals)
             ax.set_ylim(*_limits(np.concatenate(allv)))
             ax.set_xlim(wl[0], wl[-1])
             ax.set_ylabel(LABELS[q])
@@ -154,7 +154,10 @@ def plot_spectrum(spectra, quantities: Sequence[str] = ("R", "T"), *, title: str
             axes[0].text(0.0, 1.015, subtitle, transform=axes[0].transAxes, ha="left",
                          va="bottom", fontsize=8.5, color="#6b6b6b")
         if caption:
-            fig.text(0.01, 0.005, caption, ha="left", va="bottom", fontsize=7, color="#8a8a8a")
+            height_in = fig.get_figheight()
+            fig.get_layout_engine().set(rect=(0.0, 0.22 / height_in, 1.0, 1.0 - 0.22 / height_in))
+            fig.text(0.01, 0.06 / height_in, caption, ha="left", va="bottom", fontsize=7,
+                     color="#8a8a8a")
     return fig, (axes[0] if len(axes) == 1 else axes)
 
 
