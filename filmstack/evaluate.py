@@ -65,7 +65,7 @@ DEFAULT_STEP_NM = 2.0
 #: Fewest samples of a band with the default step.
 MIN_BAND_POINTS = 11
 #: Memory a batched evaluation aims to stay within (per chunk of trials), bytes.
-MEMORY_BUDGET_BYTES = 256 * 2**20
+MEMORY_BUDGET_BYTES = 64 * 2**20
 
 
 def requirement_wavelengths(req: Requirement, refine: int = 1) -> np.ndarray:
@@ -253,7 +253,13 @@ def scaled_index_stack(stack, index_scale):
 def _scale_n(indices, scale):
     """indices (L, W) complex, scale (..., L) → (..., L, W) with n scaled, k kept."""
     s = np.asarray(scale, dtype=float)[..., None]
-    return indices.real * s + 1j * indices.imag
+    if not np.any(indices.imag):
+        return indices * s                       # one complex × real product
+    out = np.empty(np.broadcast_shapes(s.shape[:-1] + indices.shape[-1:], indices.shape),
+                   dtype=complex)
+    out.real = indices.real * s
+    out.imag = indices.imag
+    return out
 
 
 # --------------------------------------------------------------------------------------------
@@ -384,8 +390,17 @@ def _batched(d, sc, N, i0, i1):
     return dd, ss
 
 
+def _engine_polarization(req):
+    """At normal incidence s and p coincide (η_p = N / cos θ = η_s at θ = 0, DESIGN.md §3), so
+    'mean' there is computed once, as 's'."""
+    if req.polarization == "mean" and all(a == 0.0 for a in req.angles_deg):
+        return "s"
+    return req.polarization
+
+
 def _rta(response, stack, req, wl, d, sc, li_fn, N, chunk, cache):
-    key = (wl.tobytes(), req.angles_deg, req.polarization)
+    pol = _engine_polarization(req)
+    key = (wl.tobytes(), req.angles_deg, pol)
     if key not in cache:
         A = len(req.angles_deg)
         base_idx = None
@@ -397,7 +412,7 @@ def _rta(response, stack, req, wl, d, sc, li_fn, N, chunk, cache):
                 li = np.asarray(li_fn(wl))
             elif sc is not None:
                 li = _scale_n(base_idx, sc)
-            sp = response.spectrum(stack, wl, list(req.angles_deg), req.polarization,
+            sp = response.spectrum(stack, wl, list(req.angles_deg), pol,
                                    thicknesses_nm=d, layer_indices=li)
             res = {"R": sp.R, "T": sp.T, "A": sp.A}
         else:
@@ -415,7 +430,7 @@ def _rta(response, stack, req, wl, d, sc, li_fn, N, chunk, cache):
                     li = _scale_n(base_idx, ss)
                 if dd is None and li is not None and li.ndim == 2:
                     dd = np.broadcast_to(stack.thicknesses_nm, (i1 - i0, len(stack.layers)))
-                sp = response.spectrum(stack, wl, list(req.angles_deg), req.polarization,
+                sp = response.spectrum(stack, wl, list(req.angles_deg), pol,
                                        thicknesses_nm=dd, layer_indices=li)
                 for q in parts:
                     v = np.asarray(getattr(sp, q))

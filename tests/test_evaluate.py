@@ -116,6 +116,20 @@ class TestJustMeets:
         assert not evaluate_requirements(st, [tighter])[0].passed
 
 
+class TestNormalIncidence:
+    def test_mean_at_normal_incidence_equals_the_engine_mean(self):
+        # evaluate computes 'mean' at 0° as 's' (r_s = r_p there, DESIGN.md §3): same numbers
+        from filmstack.response import spectrum
+        st = Stack(incident=AIR, substrate=GLASS,
+                   layers=tuple(Layer(HI if i % 2 == 0 else LO, 50.0 + 9 * i) for i in range(7)))
+        r = req(band_nm=(400.0, 700.0), over="every")
+        wl = requirement_wavelengths(r)
+        ref = spectrum(st, wl, [0.0], "mean").R[0]
+        res = evaluate_requirements(st, [r])[0]
+        assert res.value == pytest.approx(ref.max(), rel=1e-13)
+        assert res.worst_wavelength_nm == wl[np.argmax(ref)]
+
+
 class TestBatches:
     def test_batch_equals_one_by_one(self):
         st = Stack(incident=AIR, substrate=GLASS,

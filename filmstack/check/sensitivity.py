@@ -18,7 +18,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..evaluate import evaluate_requirements, requirement_wavelengths
+from ..evaluate import _engine_polarization, evaluate_requirements, requirement_wavelengths
 from ..spec import Requirement, Spec
 
 __all__ = ["FD_STEP_NM", "Sensitivity", "sensitivities"]
@@ -72,7 +72,8 @@ def _analytic(stack, req, refine, result):
     from .. import response
 
     wl = requirement_wavelengths(req, refine)
-    der = response.spectrum_derivatives(stack, wl, list(req.angles_deg), req.polarization)
+    der = response.spectrum_derivatives(stack, wl, list(req.angles_deg),
+                                        _engine_polarization(req))
     dv = np.asarray({"R": der.dR, "T": der.dT, "A": der.dA}[req.quantity])   # (L, A, W)
     ia = list(req.angles_deg).index(result.worst_angle_deg)
     if req.over == "average":
