@@ -192,8 +192,13 @@ def tilted_admittance(N, q, pol):
     return q if pol == "s" else N * N / q
 
 
-def point_chunks(problem: Problem, chunk: int = CHUNK_POINTS):
-    """Yield (start, stop) ranges of the flat point index (batch, angle, wavelength)."""
+def point_chunks(problem: Problem, chunk: int | None = None):
+    """Yield (start, stop) ranges of the flat point index (batch, angle, wavelength).
+
+    ``chunk`` points per range; None reads :data:`CHUNK_POINTS` at call time.
+    """
+    if chunk is None:
+        chunk = CHUNK_POINTS
     P = problem.n_points
     for start in range(0, P, chunk):
         yield start, min(P, start + chunk)
@@ -238,8 +243,11 @@ def chunk_terms(problem: Problem, start: int, stop: int, pols):
     return out
 
 
-def run_chunks(func, problem: Problem, chunk: int = CHUNK_POINTS):
-    """Call ``func(start, stop)`` for every chunk, on a small thread pool; returns nothing."""
+def run_chunks(func, problem: Problem, chunk: int | None = None):
+    """Call ``func(start, stop)`` for every chunk, on a small thread pool; returns nothing.
+
+    ``chunk`` points per chunk; None reads :data:`CHUNK_POINTS` at call time.
+    """
     ranges = list(point_chunks(problem, chunk))
     n = _threads()
     if n == 1 or len(ranges) == 1:
