@@ -181,8 +181,9 @@ def crown_glass(nd: float = 1.5168, vd: float = 64.17) -> dict:
                    "as defined in ISO 7944:1998, Optics and optical instruments — Reference "
                    "wavelengths"),
         "notes": ("A generic glass for designs, not a catalogue glass: it matches nd and Vd "
-                  "exactly, and a real crown glass of these values to a few 1e-3 from 380 to "
-                  "1100 nm. k = 0. For a real part use its melt data."),
+                  "exactly; away from the d, F and C lines a two-term Cauchy formula only "
+                  "approximates a real glass, increasingly toward the near infrared. k = 0 "
+                  "(no bulk absorption). For a real part use its melt data."),
     }
 
 
