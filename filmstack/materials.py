@@ -1191,7 +1191,8 @@ def get_material(name, search_paths=(), *, base_dir=None) -> Material:
             raise InputError(f"material file not found: {p}")
         return _load_cached(p)
     folders = _folders(search_paths)
-    # 1) a file named after the material; 2) names and aliases declared inside the files.
+    # Folder by folder: 1) a file named after the material (fast: the bundled library is only
+    # indexed when needed); 2) the names and aliases declared inside the folder's files.
     for folder in folders:
         f = _find_by_stem(folder, name)
         if f is not None:
@@ -1199,7 +1200,6 @@ def get_material(name, search_paths=(), *, base_dir=None) -> Material:
             if mat.name.lower() == name.lower() or name.lower() in (a.lower()
                                                                     for a in mat.aliases):
                 return mat
-    for folder in folders:
         hit = _folder_index(folder).get(name.lower())
         if hit is not None:
             return _load_cached(hit[1])

@@ -151,6 +151,11 @@ class TestUserFolders:
         assert m.name == "TiO2-ion"
         assert "TiO2-ion" in list_materials([tmp_path])
 
+    def test_alias_in_a_user_folder_wins_over_the_bundled_name(self, tmp_path):
+        write(tmp_path, "my-titania.yaml", GOOD.replace("name: TiO2", "name: my-titania")
+              .replace("[larkspur-titania]", "[TiO2]"))
+        assert get_material("TiO2", [tmp_path]).name == "my-titania"
+
     def test_same_name_twice_in_a_folder(self, tmp_path):
         write(tmp_path, "one.yaml", GOOD)
         write(tmp_path, "two.yaml", GOOD)
