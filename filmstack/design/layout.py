@@ -154,9 +154,9 @@ class DesignProblem:
         total = float(design.d.sum()) + self.fixed_nm
         if self.max_layers is not None and n > self.max_layers:
             out.append(f"{n} layers > limit {self.max_layers}")
-        if self.total_nm is not None and total > self.total_nm * (1 + 1e-9):
+        if self.total_nm is not None and total > self.total_nm * (1 + 1e-9) + 1e-9:
             out.append(f"total {total:.2f} nm > limit {self.total_nm:g} nm")
-        thin = [x for x in design.thicknesses_nm if x < self.thinnest_nm * (1 - 1e-9)]
+        thin = [x for x in design.thicknesses_nm if x < self.thinnest_nm * (1 - 1e-9) - 1e-9]
         if thin:
             out.append(f"layer of {min(thin):.3g} nm < thinnest {self.thinnest_nm:g} nm")
         unknown = sorted(set(design.symbols) - set(self.materials))

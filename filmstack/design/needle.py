@@ -97,6 +97,10 @@ class NeedleScan:
         material of the layer or of a neighbour at the probe).
     merit
         The merit F of the design.
+    multiplier
+        Lagrange multiplier λ ≥ 0 of the total-thickness limit when the design sits on it: a
+        needle then has to take its thickness from the other layers, which costs λ per nm, so
+        the useful insertions are those with P + λ < 0 (0 when the limit is not reached).
     """
 
     materials: tuple
@@ -105,10 +109,12 @@ class NeedleScan:
     depth_nm: np.ndarray
     values: np.ndarray
     merit: float
+    multiplier: float = 0.0
 
     def ranked(self):
-        """Candidates (value, material index, probe index) with value < 0, most negative first."""
-        v = np.where(np.isfinite(self.values), self.values, np.inf)
+        """Candidates (value, material index, probe index) with value + multiplier < 0, most
+        negative first (see :func:`needle_function` for the multiplier)."""
+        v = np.where(np.isfinite(self.values), self.values + self.multiplier, np.inf)
         order = np.argsort(v, axis=None, kind="stable")
         out = []
         for flat in order:
@@ -337,11 +343,18 @@ def needle_function(merit, design: Design, *, step_nm: float = DEFAULT_PROBE_STE
         raise ValueError(f"method must be 'analytic', 'expanded' or 'auto', got {method!r}")
     r, dr = merit.evaluate(design, jacobian=True, provider=provider)
     vals = (2.0 * dr @ r).reshape(len(symbols), f.size)
+    lam = 0.0
+    cap = problem.free_total_nm
+    if cap is not None and len(design) and design.d.sum() >= cap * (1.0 - 1e-6):
+        _, g = merit.value_gradient(design)
+        free = design.d > problem.thinnest_nm * 1.001
+        if np.any(free):
+            lam = max(0.0, -float(np.mean(g[free])))
     vals = np.where(_excluded(problem, design, f, z, symbols), np.nan, vals)
     base = sum(l.thickness_nm for l in problem.fixed_bottom)
     starts = np.concatenate([[0.0], np.cumsum(design.d)])[:-1] if len(design) else np.zeros(1)
     depth = base + starts[np.maximum(f, 0)] + z
-    return NeedleScan(symbols, f, z, depth, vals, float(r @ r))
+    return NeedleScan(symbols, f, z, depth, vals, float(r @ r), lam)
 
 
 def insert_needle(design: Design, layer: int, z_nm: float, symbol: str,
@@ -377,9 +390,12 @@ def _fits(problem, design: Design) -> bool:
 def _needle_thickness(merit, design, scan, m, p, value, current):
     """First thickness of a needle: best of a few trial thicknesses (nm) by merit value."""
     sym = scan.materials[m]
+    cap = merit.problem.free_total_nm
     best = None
     for eps in (0.5, 1.0, 2.0, 4.0, 8.0):
         trial = insert_needle(design, int(scan.layer[p]), float(scan.z_nm[p]), sym, eps)
+        if cap is not None and trial.d.sum() > cap:
+            trial = trial.with_d(trial.d * (cap / trial.d.sum()))
         val = merit.value(trial)
         if best is None or val < best[0]:
             best = (val, trial)

@@ -33,14 +33,13 @@ class TimeUp(Exception):
 
 
 class Clock:
-    """Deadline keeper: ``check()`` raises :class:`TimeUp` once ``limit_s`` seconds have passed.
+    """Deadline keeper: ``check()`` raises :class:`TimeUp` once ``limit_s`` seconds have passed
+    (``None``: no limit) or when ``stop()`` returns True (a polite stop request, e.g. Ctrl-C)."""
 
-    ``limit_s=None`` means no limit.
-    """
-
-    def __init__(self, limit_s: float | None = None):
+    def __init__(self, limit_s: float | None = None, stop=None):
         self.start = time.perf_counter()
         self.limit_s = limit_s
+        self.stop = stop
 
     @property
     def elapsed(self) -> float:
@@ -55,14 +54,21 @@ class Clock:
     def check(self) -> None:
         if self.limit_s is not None and self.elapsed > self.limit_s:
             raise TimeUp(f"time limit of {self.limit_s:g} s reached")
+        if self.stop is not None and self.stop():
+            raise TimeUp("stopped on request")
 
 
-def _project_total(problem, x):
+def _project_total(problem, x, lower=0.0):
+    """Thicknesses brought within the total limit: the excess is taken from every layer in
+    proportion to its thickness above ``lower``."""
     cap = problem.free_total_nm
     s = float(np.sum(x))
-    if cap is not None and s > cap:
-        x = x * (cap / s)
-    return x
+    if cap is None or s <= cap:
+        return x
+    room = np.clip(x - lower, 0.0, None)
+    if room.sum() <= 0:
+        return x * (cap / s)
+    return x - (s - cap) * room / room.sum()
 
 
 def refine_thicknesses(merit, design: Design, *, method: str = "trf", max_nfev: int = 100,
@@ -145,7 +151,7 @@ def refine_thicknesses(merit, design: Design, *, method: str = "trf", max_nfev: 
             raise
     # the best point seen (merit + penalty), scaled onto the total-thickness limit if the
     # penalty left it a little above
-    x = _project_total(problem, np.clip(best["x"], lower, None))
+    x = _project_total(problem, np.clip(best["x"], lower, None), lower)
     out = design.with_d(x)
     return out, merit.value(out)
 

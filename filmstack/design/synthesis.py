@@ -123,7 +123,8 @@ def _fit_limits(problem: DesignProblem, design: Design) -> Design:
 def synthesize(spec, *, seed: int = 0, time_limit_s: float | None = 60.0,
                strategy: str = "auto", progress=None, start: str | Design | None = None,
                step_nm: float = DEFAULT_PROBE_STEP_NM, restarts: int = 3,
-               margin_fraction: float = 0.05, method: str = "trf") -> DesignResult:
+               margin_fraction: float = 0.05, method: str = "trf",
+               stop=None) -> DesignResult:
     """Design a coating for ``spec``.
 
     Parameters
@@ -150,6 +151,9 @@ def synthesize(spec, *, seed: int = 0, time_limit_s: float | None = 60.0,
         Design margin of the merit (see :class:`~filmstack.design.merit.Merit`).
     method
         Refinement method, 'trf' or 'lbfgs'.
+    stop
+        Optional callable; when it returns True the search stops with the best design so far
+        (the command line sets it on the first Ctrl-C).
 
     Returns
     -------
@@ -157,7 +161,7 @@ def synthesize(spec, *, seed: int = 0, time_limit_s: float | None = 60.0,
     """
     if strategy not in STRATEGIES:
         raise InputError(f"strategy must be one of {', '.join(STRATEGIES)}, got {strategy!r}")
-    clock = Clock(time_limit_s)
+    clock = Clock(time_limit_s, stop)
     problem = DesignProblem.from_spec(spec)
     merit = Merit(problem, spec.requirements, margin_fraction=margin_fraction)
     if not merit.targets:
@@ -217,7 +221,7 @@ def synthesize(spec, *, seed: int = 0, time_limit_s: float | None = 60.0,
     d, v = state["design"], state["value"]
     fine = Merit(problem, spec.requirements, refine=4, margin_fraction=0.0)
     fine_v = fine.value(d)
-    if fine_v > 0 and v == 0 and clock.left > 0:
+    if fine_v > 0 and v == 0 and clock.left > 0 and not (stop is not None and stop()):
         # the spec's sampling hides a failure: polish on the fine grid, keep it if the
         # spec-grid merit stays where it was
         try:

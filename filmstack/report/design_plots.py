@@ -1,0 +1,293 @@
+"""Figures of a design: spectra against the spec's targets, R over wavelength × angle, the index
+profile, and the merit along the search.
+
+Every function returns ``(Figure, Axes)`` without pyplot state (see :mod:`filmstack.report`);
+render with :func:`filmstack.report.figure_bytes`. matplotlib is imported inside the functions.
+
+Targets are drawn the same way everywhere: the band of a requirement is a thick line at its limit
+with the forbidden side lightly shaded (``<=``: above, ``>=``: below); an ``=`` target is a band of
+± its tolerance. R, T, A are in percent, GD in fs, GDD in fs², phase in degrees.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .spectrum_plot import DPI, LINESTYLES, PALETTE, WIDTH_IN, _STYLE
+
+__all__ = ["plot_design_spectra", "plot_reflectance_map", "plot_index_profile",
+           "plot_merit_history", "design_wavelengths"]
+
+_QLABEL = {"R": "Reflectance R (%)", "T": "Transmittance T (%)", "A": "Absorptance A (%)",
+           "phase": "Phase (deg)", "GD": "Group delay (fs)", "GDD": "GDD (fs²)"}
+_QSCALE = {"R": 100.0, "T": 100.0, "A": 100.0, "phase": 180.0 / np.pi, "GD": 1.0, "GDD": 1.0}
+_TARGET = "#3b3b3b"
+_FORBID = "#d1495b"
+
+
+def design_wavelengths(requirements, *, pad: float = 0.1, points: int = 601,
+                       material_range=None) -> np.ndarray:
+    """A plotting grid (nm) covering every requirement's band with ``pad`` of the span on each
+    side, clipped to ``material_range`` (lo, hi) where the materials have data."""
+    lo = min(float(r.band_nm[0]) for r in requirements)
+    hi = max(float(r.band_nm[1]) for r in requirements)
+    span = max(hi - lo, 0.05 * hi)
+    lo, hi = lo - pad * span, hi + pad * span
+    if material_range is not None:
+        lo, hi = max(lo, material_range[0]), min(hi, material_range[1])
+    return np.linspace(lo, hi, points)
+
+
+def _draw_target(ax, req, scale):
+    lo, hi = float(req.band_nm[0]), float(req.band_nm[1])
+    if lo == hi:
+        lo, hi = lo - 1.0, hi + 1.0
+    lim = req.limit * scale
+    y0, y1 = ax.get_ylim()
+    if req.op == "=":
+        tol = req.tolerance * scale
+        ax.fill_between([lo, hi], lim - tol, lim + tol, color=_TARGET, alpha=0.12, lw=0,
+                        zorder=1)
+        ax.plot([lo, hi], [lim, lim], color=_TARGET, lw=1.0, ls=(0, (4, 2)), zorder=3)
+        return
+    if req.op == "<=":
+        ax.fill_between([lo, hi], lim, max(y1, lim), color=_FORBID, alpha=0.08, lw=0, zorder=1)
+    else:
+        ax.fill_between([lo, hi], min(y0, lim), lim, color=_FORBID, alpha=0.08, lw=0, zorder=1)
+    ax.plot([lo, hi], [lim, lim], color=_TARGET, lw=2.2, solid_capstyle="butt", zorder=3)
+    ax.set_ylim(y0, y1)
+
+
+def plot_design_spectra(stack, requirements, *, wavelengths_nm=None, title=None, subtitle=None,
+                        caption=None):
+    """The design's response with the spec's targets, one panel per quantity.
+
+    Parameters
+    ----------
+    stack
+        The design (:class:`~filmstack.stack.Stack`).
+    requirements
+        The spec's requirements (colour requirements are skipped).
+    wavelengths_nm
+        Plot grid (W,), nm; default :func:`design_wavelengths`.
+    title, subtitle, caption
+        Texts as in :func:`~filmstack.report.plot_spectrum`.
+
+    Returns
+    -------
+    (Figure, array of Axes), one panel per quantity present (R, T, A, phase, GD, GDD), each
+    showing every (angle, polarisation) the requirements on it name.
+    """
+    from matplotlib import rc_context
+    from matplotlib.figure import Figure
+
+    from ..response import phase_response, spectrum
+
+    reqs = [r for r in requirements if r.quantity in _QLABEL]
+    if not reqs:
+        raise ValueError("no requirement on R, T, A, phase, GD or GDD to plot")
+    wl = design_wavelengths(reqs) if wavelengths_nm is None else np.asarray(wavelengths_nm, float)
+    order = [q for q in ("R", "T", "A", "phase", "GD", "GDD") if any(r.quantity == q for r in reqs)]
+    with rc_context(_STYLE):
+        fig = Figure(figsize=(WIDTH_IN, 0.9 + 2.6 * len(order)), dpi=DPI, layout="constrained")
+        axes = fig.subplots(len(order), 1, sharex=True, squeeze=False)[:, 0]
+        for ax, q in zip(axes, order):
+            qreqs = [r for r in reqs if r.quantity == q]
+            curves = []                     # (angle, pol, side)
+            for r in qreqs:
+                for a in r.angles_deg:
+                    key = (float(a), r.polarization, r.side if q in ("phase", "GD", "GDD")
+                           else "")
+                    if key not in curves:
+                        curves.append(key)
+            angles_all = sorted({c[0] for c in curves})
+            allv = []
+            for a, pol, side in curves:
+                colour = PALETTE[angles_all.index(a) % len(PALETTE)]
+                if q in ("R", "T", "A"):
+                    sp = spectrum(stack, wl, [a], pol)
+                    vals = np.asarray(getattr(sp, q))[0] * _QSCALE[q]
+                else:
+                    pr = phase_response(stack, wl, a, pol, side=side)
+                    vals = {"phase": pr.phase_rad, "GD": pr.gd_fs, "GDD": pr.gdd_fs2}[q] \
+                        * _QSCALE[q]
+                label = f"{a:g}°  {pol}" + (f"  {side}" if side else "")
+                ax.plot(wl, vals, color=colour, linestyle=LINESTYLES.get(pol, "-"), lw=1.5,
+                        label=label, zorder=4)
+                allv.append(vals)
+            v = np.concatenate(allv)
+            lims = np.array([r.limit * _QSCALE[q] for r in qreqs])
+            lo, hi = float(np.nanmin(np.r_[v, lims])), float(np.nanmax(np.r_[v, lims]))
+            if q in ("R", "T", "A"):
+                lo, hi = max(lo, 0.0), min(hi, 100.0)
+                if hi - lo < 1.0:
+                    hi = lo + 1.0
+            pad = 0.06 * (hi - lo if hi > lo else 1.0)
+            ax.set_ylim(lo - pad if q not in ("R", "T", "A") or lo > 0 else 0.0, hi + pad)
+            for r in qreqs:
+                _draw_target(ax, r, _QSCALE[q])
+            ax.set_ylabel(_QLABEL[q])
+            ax.set_xlim(wl[0], wl[-1])
+            ax.legend(loc="best", title="angle  polarisation", title_fontsize=8,
+                      ncols=1 if len(curves) <= 5 else 2)
+        axes[-1].set_xlabel("Wavelength (nm, vacuum)")
+        if title:
+            axes[0].set_title(title, pad=16 if subtitle else 6)
+        if subtitle:
+            axes[0].text(0.0, 1.015, subtitle, transform=axes[0].transAxes, ha="left",
+                         va="bottom", fontsize=8.5, color="#6b6b6b")
+        _caption(fig, caption)
+    return fig, axes
+
+
+def _caption(fig, caption):
+    if caption:
+        height_in = fig.get_figheight()
+        fig.get_layout_engine().set(rect=(0.0, 0.22 / height_in, 1.0, 1.0 - 0.22 / height_in))
+        fig.text(0.01, 0.06 / height_in, caption, ha="left", va="bottom", fontsize=7,
+                 color="#8a8a8a")
+
+
+def plot_reflectance_map(stack, wavelengths_nm, angles_deg, polarization: str = "mean", *,
+                         requirements=(), quantity: str = "R", title=None, caption=None):
+    """R (or T) in percent over wavelength × angle of incidence as an image.
+
+    Parameters
+    ----------
+    stack
+        The design.
+    wavelengths_nm, angles_deg
+        Grids (W,) nm and (A,) degrees.
+    polarization
+        's', 'p' or 'mean'.
+    requirements
+        Requirements on the same quantity are outlined (band × angle span).
+    quantity
+        'R' or 'T'.
+
+    Returns
+    -------
+    (Figure, Axes)
+    """
+    from matplotlib import rc_context
+    from matplotlib.figure import Figure
+    from matplotlib.patches import Rectangle
+
+    from ..response import spectrum
+
+    wl = np.asarray(wavelengths_nm, float)
+    ang = np.asarray(angles_deg, float)
+    vals = 100.0 * np.asarray(getattr(spectrum(stack, wl, ang, polarization), quantity))
+    with rc_context(_STYLE):
+        fig = Figure(figsize=(WIDTH_IN, 4.6), dpi=DPI, layout="constrained")
+        ax = fig.subplots()
+        ax.grid(False)
+        im = ax.pcolormesh(wl, ang, vals, shading="nearest", cmap="magma",
+                           vmin=0.0, vmax=max(float(np.nanmax(vals)), 1e-3))
+        cb = fig.colorbar(im, ax=ax, pad=0.01)
+        cb.set_label(f"{'Reflectance R' if quantity == 'R' else 'Transmittance T'} (%), "
+                     f"{polarization}")
+        for r in requirements:
+            if r.quantity != quantity:
+                continue
+            a0, a1 = min(r.angles_deg), max(r.angles_deg)
+            lo, hi = r.band_nm
+            ax.add_patch(Rectangle((lo, a0 - 0.5), max(hi - lo, 1.0), (a1 - a0) + 1.0,
+                                   fill=False, ec="#7fd1ff", lw=1.4, ls=(0, (4, 2))))
+        ax.set_xlabel("Wavelength (nm, vacuum)")
+        ax.set_ylabel("Angle of incidence (deg)")
+        if title:
+            ax.set_title(title)
+        _caption(fig, caption)
+    return fig, ax
+
+
+def plot_index_profile(stack, wavelength_nm: float | None = None, *, title=None, caption=None,
+                       fixed=None):
+    """Real refractive index against height above the substrate (nm), at one wavelength.
+
+    The substrate is drawn to the left of 0, the incident medium to the right of the top; each
+    layer is labelled with its material when there is room. ``fixed`` (a boolean per layer)
+    hatches the layers the design kept fixed.
+
+    Returns
+    -------
+    (Figure, Axes)
+    """
+    from matplotlib import rc_context
+    from matplotlib.figure import Figure
+
+    wl = float(stack.reference_nm if wavelength_nm is None else wavelength_nm)
+    d = stack.thicknesses_nm
+    n_layers = np.real(stack.layer_indices([wl]))[:, 0] if d.size else np.zeros(0)
+    n_sub = float(np.real(stack.substrate.nk(np.array([wl]))[0]))
+    n_inc = float(np.real(stack.incident.nk(np.array([wl]))[0]))
+    total = float(d.sum())
+    side = max(0.08 * total, 20.0)
+    edges = np.concatenate([[0.0], np.cumsum(d)])
+    names = sorted({l.material.name for l in stack.layers})
+    colours = {nm: PALETTE[i % len(PALETTE)] for i, nm in enumerate(names)}
+    with rc_context(_STYLE):
+        fig = Figure(figsize=(WIDTH_IN, 3.6), dpi=DPI, layout="constrained")
+        ax = fig.subplots()
+        ax.fill_between([-side, 0], 0, n_sub, color="#b9b4aa", step="post", lw=0)
+        ax.text(-side / 2, n_sub, f"{stack.substrate.name}\n", ha="center", va="bottom",
+                fontsize=7.5, color="#4a4a4a")
+        ax.fill_between([total, total + side], 0, n_inc, color="#e6e3dc", lw=0)
+        ax.text(total + side / 2, n_inc, f"{stack.incident.name}\n", ha="center", va="bottom",
+                fontsize=7.5, color="#4a4a4a")
+        for j, layer in enumerate(stack.layers):
+            x0, x1 = edges[j], edges[j + 1]
+            hatch = "///" if fixed is not None and fixed[j] else None
+            ax.fill_between([x0, x1], 0, n_layers[j], color=colours[layer.material.name],
+                            alpha=0.85, lw=0, hatch=hatch, edgecolor="white")
+        x = np.concatenate([[-side], edges, [total + side]])
+        y = np.concatenate([[n_sub], n_layers, [n_inc, n_inc]])
+        ax.step(x, y, where="post", color="#2b2b2b", lw=0.9)
+        handles = [ax.fill_between([], [], [], color=colours[nm], alpha=0.85, label=nm)
+                   for nm in names]
+        if handles:
+            ax.legend(handles=handles, loc="upper right", ncols=min(4, len(handles)))
+        top = max(np.r_[n_layers, n_sub, n_inc]) if d.size else max(n_sub, n_inc)
+        ax.set_ylim(min(1.0, n_inc) * 0.9, top * 1.18)
+        ax.set_xlim(-side, total + side)
+        ax.set_xlabel("Height above the substrate (nm); light arrives from the right")
+        ax.set_ylabel(f"Refractive index n at {wl:g} nm")
+        ax.set_title(title or f"Index profile: {d.size} layers, {total:.1f} nm")
+        _caption(fig, caption)
+    return fig, ax
+
+
+def plot_merit_history(history, *, title=None):
+    """Merit (log scale) against elapsed time, with the layer count, from a design history.
+
+    ``history`` is :attr:`filmstack.design.DesignResult.history` (dicts with ``elapsed_s``,
+    ``merit``, ``layers``).
+
+    Returns
+    -------
+    (Figure, Axes) — the merit axes (the layer count is on a twin axis).
+    """
+    from matplotlib import rc_context
+    from matplotlib.figure import Figure
+
+    t = np.array([h["elapsed_s"] for h in history], float)
+    m = np.array([h["merit"] for h in history], float)
+    n = np.array([h["layers"] for h in history], float)
+    with rc_context(_STYLE):
+        fig = Figure(figsize=(WIDTH_IN, 3.4), dpi=DPI, layout="constrained")
+        ax = fig.subplots()
+        pos = np.where(m > 0, m, np.nan)
+        ax.step(t, pos, where="post", color=PALETTE[0], lw=1.6, label="merit")
+        ax.plot(t, pos, "o", color=PALETTE[0], ms=3)
+        if np.any(np.isfinite(pos)):
+            ax.set_yscale("log")
+        ax.set_xlabel("Elapsed time (s)")
+        ax.set_ylabel("Merit (squared % points)")
+        ax2 = ax.twinx()
+        ax2.step(t, n, where="post", color=PALETTE[1], lw=1.0, ls=(0, (4, 2)))
+        ax2.set_ylabel("Layers", color=PALETTE[1])
+        ax2.grid(False)
+        ax2.spines["right"].set_visible(True)
+        ax.set_title(title or "Merit along the search")
+    return fig, ax
