@@ -25,6 +25,7 @@ class BatchResult:
     cost: np.ndarray       # (S,) 0.5 Σ r²
     n_iter: np.ndarray     # (S,)
     converged: np.ndarray  # (S,) bool
+    abandoned: np.ndarray  # (S,) bool: stopped early as clearly worse than another start
     interrupted: bool = False
 
 
@@ -56,6 +57,7 @@ def batched_lm(fun, X0, lower, upper, *, max_iter: int = 60, ftol: float = 1e-10
     n_iter = np.zeros(S, dtype=int)
     active = np.isfinite(cost)
     converged = np.zeros(S, dtype=bool)
+    abandoned = np.zeros(S, dtype=bool)
     eye = np.eye(P)
     interrupted = False
     for _ in range(max_iter):
@@ -109,7 +111,9 @@ def batched_lm(fun, X0, lower, upper, *, max_iter: int = 60, ftol: float = 1e-10
             gmin = np.full(int(group.max()) + 1, np.inf)
             np.minimum.at(gmin, group, cost)
             slow = ~ok | (gain_rel < 0.05)
-            done |= slow & (cost[idx] > give_up * gmin[group[idx]])
+            drop = slow & (cost[idx] > give_up * gmin[group[idx]]) & ~done
+            abandoned[idx[drop]] = True
+            done |= drop
         converged[idx[done]] = True
         active[idx[done]] = False
-    return BatchResult(X, cost, n_iter, converged, interrupted)
+    return BatchResult(X, cost, n_iter, converged & ~abandoned, abandoned, interrupted)

@@ -100,6 +100,23 @@ def _warnings(model: FitModel, x, stderr, corr, singular, at_bound, chi2_red,
     return out
 
 
+#: An alternative minimum is not excluded when its χ² exceeds the best by less than this
+#: (about 3σ for one degree of freedom; χ² in units of the residual variance unless the
+#: uncertainties are taken as absolute).
+DELTA_CHI2_AMBIGUOUS = 9.0
+
+
+def _ambiguity_limit(ratio: float, dof: int, cost_best, absolute: bool):
+    """The largest cost of another minimum that still makes a fit ambiguous: the larger of
+    ``ratio`` × the best cost and the best cost plus Δχ² = ``DELTA_CHI2_AMBIGUOUS``."""
+    cost_best = np.asarray(cost_best, dtype=float)
+    if absolute:
+        stat = cost_best + 0.5 * DELTA_CHI2_AMBIGUOUS
+    else:
+        stat = cost_best * (1.0 + DELTA_CHI2_AMBIGUOUS / max(dof, 1))
+    return np.maximum(ratio * cost_best, stat)
+
+
 def _distinct(xa, xb, grid) -> bool:
     """True if two solutions lie in different minima (thicknesses ≥ ¼ fringe apart)."""
     if grid is None:
@@ -109,7 +126,7 @@ def _distinct(xa, xb, grid) -> bool:
 
 
 def fit_spectrum(model: FitModel, measurement: Measurement, *, global_search: bool = True,
-                 n_starts: int = 3, max_grid: int = 20000, seed: int = 0,
+                 n_starts: int = 5, max_grid: int = 20000, seed: int = 0,
                  absolute_sigma: bool = False, ambiguity_ratio: float = 1.25) -> FitResult:
     """Fit the free parameters of ``model`` to one measurement.
 
@@ -131,7 +148,8 @@ def fit_spectrum(model: FitModel, measurement: Measurement, *, global_search: bo
         With measured uncertainties: take them as absolute (standard errors not scaled by the
         residual variance). Default: scaled, as the residual variance also carries model error.
     ambiguity_ratio
-        Another distinct minimum with merit ≤ this × the best makes the fit ambiguous.
+        Another distinct minimum with merit ≤ this × the best makes the fit ambiguous; so does
+        one whose χ² exceeds the best by less than ``DELTA_CHI2_AMBIGUOUS`` (9, about 3σ).
 
     Returns
     -------
@@ -165,7 +183,8 @@ def fit_spectrum(model: FitModel, measurement: Measurement, *, global_search: bo
 
     lm = batched_lm(fun_batch, np.asarray(starts), lower, upper, max_iter=30, ftol=1e-8,
                     xtol=1e-8, group=np.zeros(len(starts), dtype=int),
-                    give_up=2.0 * ambiguity_ratio)
+                    give_up=2.0 * max(ambiguity_ratio,
+                                      1.0 + DELTA_CHI2_AMBIGUOUS / max(Y.size - lower.size, 1)))
     order = np.argsort(lm.cost)
 
     # ... then polish the best with scipy's trust-region least squares.
@@ -182,6 +201,8 @@ def fit_spectrum(model: FitModel, measurement: Measurement, *, global_search: bo
     nfev = int(lm.n_iter.sum()) * 2 + best.nfev
     distinct = []
     for k in order[1:]:
+        if lm.abandoned[k]:
+            continue
         xk = lm.x[k]
         if _distinct(xk, best.x, grid) and all(_distinct(xk, d[0], grid) for d in distinct):
             distinct.append((xk, float(lm.cost[k])))
@@ -197,8 +218,9 @@ def fit_spectrum(model: FitModel, measurement: Measurement, *, global_search: bo
     bound = _at_bound(x, lower, upper)
     alt = None
     if distinct:
-        ratio = distinct[0][1] / best.cost if best.cost > 0 else math.inf
-        if ratio <= ambiguity_ratio:
+        limit = _ambiguity_limit(ambiguity_ratio, dof, best.cost, absolute_sigma and has_sigma)
+        if distinct[0][1] <= limit:
+            ratio = distinct[0][1] / best.cost if best.cost > 0 else math.inf
             alt = (distinct[0][0], ratio)
     warns = _warnings(model, x, stderr, corr, singular, bound, chi2, alt)
     values = tuple(FitValue(p.name, float(x[j]), float(stderr[j]), p.unit, p.lower, p.upper,
@@ -217,7 +239,7 @@ def fit_spectrum(model: FitModel, measurement: Measurement, *, global_search: bo
 
 
 def fit_map(model: FitModel, measured: MeasuredSet | Sequence[Measurement], *,
-            global_search: bool = True, n_starts: int = 2, max_grid: int = 4096, seed: int = 0,
+            global_search: bool = True, n_starts: int = 3, max_grid: int = 4096, seed: int = 0,
             absolute_sigma: bool = False, ambiguity_ratio: float = 1.25, chunk: int = 2048,
             progress: Callable[[int, int], None] | None = None,
             stop: Callable[[], bool] | None = None) -> MapResult:
@@ -234,7 +256,7 @@ def fit_map(model: FitModel, measured: MeasuredSet | Sequence[Measurement], *,
     measured
         The sites (:class:`~filmstack.io.measured.MeasuredSet` or a sequence of measurements).
     global_search, n_starts, max_grid, seed, absolute_sigma, ambiguity_ratio
-        As for :func:`fit_spectrum` (``n_starts`` minima are refined per site; 2 by default,
+        As for :func:`fit_spectrum` (``n_starts`` minima are refined per site; 3 by default,
         enough to tell an ambiguous site).
     chunk
         Sites per batch (bounds memory).
@@ -298,7 +320,9 @@ def fit_map(model: FitModel, measured: MeasuredSet | Sequence[Measurement], *,
                 return r, (J * _w[rows][..., None] if jac else None)
 
             res = batched_lm(fun, X0.reshape(n * K, P), lower, upper, stop=stop,
-                             group=np.repeat(np.arange(n), K), give_up=2.0 * ambiguity_ratio,
+                             group=np.repeat(np.arange(n), K),
+                             give_up=2.0 * max(ambiguity_ratio,
+                                               1.0 + DELTA_CHI2_AMBIGUOUS / max(Y.shape[1] - P, 1)),
                              se_tol=0.01)
             interrupted |= res.interrupted
             xk = res.x.reshape(n, K, P)
@@ -330,7 +354,8 @@ def fit_map(model: FitModel, measured: MeasuredSet | Sequence[Measurement], *,
                 chi2[idx] = np.sum(rw**2, axis=1) / dof
             bnd = _at_bound(best, lower, upper)
             at_bound[idx] = bnd
-            amb = alt_ratio <= ambiguity_ratio
+            limit = _ambiguity_limit(ambiguity_ratio, dof, cbest, absolute_sigma and has_sigma)
+            amb = alt_ratio * cbest <= limit
             ambiguous[idx] = amb
             flagged = (bnd.any(axis=1) | amb | singular.any(axis=1)
                        | (np.abs(np.triu(np.nan_to_num(corr), 1)) > 0.98).any(axis=(1, 2)))

@@ -183,6 +183,8 @@ def grid_candidates(model: FitModel, grid: SearchGrid, F_grid: np.ndarray, Y: np
     F2t = (F_grid**2).T
     coords = grid.X[:, grid.thick] / grid.period                     # (G, T) in periods
     chunk = max(1, min(1024, int(2_000_000 // max(G, 1))))           # bounded (s, G) arrays
+    steps = ([(grid.X[:, j].max() - grid.X[:, j].min()) / max(n - 1, 1)
+              for j, n in zip(grid.thick, grid.shape)] if grid.shape is not None else None)
     for a in range(0, S, chunk):
         y = Y[a:a + chunk]
         w2 = w[a:a + chunk] ** 2
@@ -196,9 +198,13 @@ def grid_candidates(model: FitModel, grid: SearchGrid, F_grid: np.ndarray, Y: np
         merit = yy - 2.0 * c * yF + c * c * FF                        # (s, G)
         if grid.shape is not None and G > 1:
             candidate = _lattice_minima(merit, grid.shape)
+            # Rank the lattice minima by the parabola-vertex estimate of their basin's minimum,
+            # not by the sampled value (which depends on where the samples fall in the basin).
+            rank, offsets = _parabolic(merit, grid.shape)
         else:
             candidate = np.ones_like(merit, dtype=bool)
-        m = np.where(candidate, merit, np.inf)
+            rank, offsets = merit, None
+        m = np.where(candidate, rank, np.inf)
         s_idx = np.arange(y.shape[0])
         chosen = []
         for k in range(K):
@@ -218,37 +224,46 @@ def grid_candidates(model: FitModel, grid: SearchGrid, F_grid: np.ndarray, Y: np
             merit_out[a:a + chunk, k] = merit[s_idx, best]
             if sc:
                 X0[a:a + chunk, k, sc[0]] = c[s_idx, best]
-            if grid.shape is not None:
-                _parabolic(X0[a:a + chunk, k], merit, best, grid)
+            if offsets is not None:
+                for t, j in enumerate(grid.thick):
+                    X0[a:a + chunk, k, j] += offsets[t][s_idx, best] * steps[t]
     return X0, merit_out
 
 
-def _parabolic(X: np.ndarray, merit: np.ndarray, best: np.ndarray, grid: SearchGrid) -> None:
-    """Move each start (rows of X, in place) to the vertex of the parabola through the merit at
-    its lattice point and the two neighbours along each thickness axis (at most one step)."""
+def _parabolic(merit: np.ndarray, shape: tuple[int, ...]):
+    """Parabolic refinement on a lattice.
+
+    Along each axis, the parabola through a point and its two neighbours has its vertex at
+    offset δ = (m₋ − m₊) / (2 (m₋ − 2m₀ + m₊)) steps (clipped to ±1) and value
+    m₀ − (m₋ − m₊)² / (8 (m₋ − 2m₀ + m₊)).
+
+    Returns
+    -------
+    estimate : (S, G)
+        The merit lowered by the vertex estimate along every axis (= merit where not convex).
+    offsets : list of (S, G)
+        The vertex offset along each axis, in lattice steps.
+    """
     S = merit.shape[0]
-    m = merit.reshape((S,) + grid.shape)
-    multi = np.unravel_index(best, grid.shape)
-    rows = np.arange(S)
-    for t, j in enumerate(grid.thick):
-        n = grid.shape[t]
-        i = multi[t]
-        inner = (i > 0) & (i < n - 1)
-        if n < 3 or not inner.any():
-            continue
-        lo_idx = list(multi)
-        hi_idx = list(multi)
-        lo_idx[t] = np.clip(i - 1, 0, n - 1)
-        hi_idx[t] = np.clip(i + 1, 0, n - 1)
-        m0 = m[(rows, *multi)]
-        mlo = m[(rows, *lo_idx)]
-        mhi = m[(rows, *hi_idx)]
-        curv = mlo - 2.0 * m0 + mhi
-        ok = inner & (curv > 0)
-        off = np.where(ok, 0.5 * (mlo - mhi) / np.where(ok, curv, 1.0), 0.0)
-        off = np.clip(off, -1.0, 1.0)
-        step = (grid.X[:, j].max() - grid.X[:, j].min()) / (n - 1)
-        X[:, j] += off * step
+    m = merit.reshape((S,) + shape)
+    est = m.copy()
+    offsets = []
+    for ax in range(1, m.ndim):
+        n = m.shape[ax]
+        off = np.zeros_like(m)
+        if n >= 3:
+            inner = [slice(None)] * m.ndim
+            lo = [slice(None)] * m.ndim
+            hi = [slice(None)] * m.ndim
+            inner[ax], lo[ax], hi[ax] = slice(1, n - 1), slice(0, n - 2), slice(2, n)
+            m0, mlo, mhi = m[tuple(inner)], m[tuple(lo)], m[tuple(hi)]
+            curv = mlo - 2.0 * m0 + mhi
+            ok = curv > 0
+            safe = np.where(ok, curv, 1.0)
+            off[tuple(inner)] = np.where(ok, np.clip(0.5 * (mlo - mhi) / safe, -1.0, 1.0), 0.0)
+            est[tuple(inner)] -= np.where(ok, (mlo - mhi) ** 2 / (8.0 * safe), 0.0)
+        offsets.append(off.reshape(S, -1))
+    return est.reshape(S, -1), offsets
 
 
 def _lattice_minima(merit: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:
