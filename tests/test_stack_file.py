@@ -43,14 +43,18 @@ def calls():
 def fake_library(monkeypatch, calls):
     real = stack_file.material_from_spec
 
-    def lookup(spec, search_paths=()):
+    def lookup(spec, search_paths=(), **kw):
         calls.append((spec, tuple(search_paths)))
-        if isinstance(spec, str):
+        if isinstance(spec, str) and "." not in spec and "/" not in spec:
             if spec in FAKE:
                 return FAKE[spec]
             near = difflib.get_close_matches(spec, FAKE, n=3, cutoff=0.3)
-            raise InputError(f"unknown material '{spec}'; nearest names: {', '.join(near)}")
-        return real(spec, search_paths)
+            err = InputError(f"unknown material '{spec}'; nearest names: {', '.join(near)}")
+            if kw.get("key") is None:
+                raise err
+            raise InputError(err.message, file=kw.get("file"), key=kw["key"],
+                             line=kw.get("lines", {}).get(kw["key"]))
+        return real(spec, search_paths, **kw)
 
     monkeypatch.setattr(stack_file, "material_from_spec", lookup)
 
@@ -180,8 +184,8 @@ class TestLoad:
             layers: []
         """)
         load_stack(p, search_paths=[tmp_path / "extra"])
-        # the caller's folders first, then the file's materials_dir
-        assert calls[-1] == ("glass", (tmp_path / "extra", tmp_path / "mine"))
+        # the caller's folders are searched first: get_material searches later folders first
+        assert calls[-1] == ("glass", (tmp_path / "mine", tmp_path / "extra"))
 
     def test_key_prefix_for_embedded_stacks(self):
         from filmstack.io.yamlfile import load_yaml_text

