@@ -19,11 +19,12 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from .errors import InputError
-from .materials import Constant, Material
+from .materials import Material, get_material
 
 __all__ = ["Layer", "Stack", "FreeParameter", "AIR", "qwot_to_nm", "nm_to_qwot"]
 
-AIR = Constant(name="air", source="n = 1 (vacuum; air differs by about 3e-4)", n=1.0)
+#: The library's air (n = 1), the default incident and exit medium.
+AIR = get_material("air")
 
 
 @dataclass(frozen=True)
