@@ -40,7 +40,9 @@ def calls():
 
 
 @pytest.fixture(autouse=True)
-def fake_library(monkeypatch, calls):
+def fake_library(request, monkeypatch, calls):
+    if getattr(request.cls, "REAL_LIBRARY", False):
+        return  # these tests use the bundled library
     real = stack_file.material_from_spec
 
     def lookup(spec, search_paths=(), **kw):
@@ -464,3 +466,91 @@ class TestSave:
         assert "materials_dir: mine\n" in (tmp_path / "m.yaml").read_text()
         assert load_stack(tmp_path / "m.yaml") == s
         assert calls[-1][1] == (tmp_path / "mine",)
+
+
+class TestRealLibrary:
+    """The same paths with the bundled library (filmstack/data/materials)."""
+
+    REAL_LIBRARY = True
+
+    TEXT = """
+        incident: air
+        substrate: {material: fused-silica, mm: 1.0}
+        exit: air
+        reference_nm: 550
+        layers:
+          - {material: TiO2, qwot: 1}
+          - {material: SiO2, qwot: 1}
+          - {material: TiO2, nm: {fit: 20, min: 5, max: 40}}
+        back_design: "0.5L"
+        symbols: {L: MgF2}
+    """
+
+    def test_load(self, tmp_path):
+        from filmstack.materials import get_material
+        s = load_stack(write(tmp_path, self.TEXT))
+        assert [l.material.name for l in s.layers] == ["TiO2", "SiO2", "TiO2"]
+        assert s.substrate.name == "fused-silica" and s.substrate_mm == 1.0
+        # Malitson, J. Opt. Soc. Am. 55, 1205 (1965): fused silica n(587.6 nm) = 1.4585
+        assert s.substrate.nk(587.6).real == pytest.approx(1.4585, abs=2e-4)
+        # QWOT: n(λ_ref)·d = λ_ref/4 with the library's own index (Macleod, 4th ed., §2.4)
+        n_tio2 = get_material("TiO2").nk(550.0).real
+        assert s.layers[0].thickness_nm == pytest.approx(550 / (4 * n_tio2), rel=1e-12)
+        n_mgf2 = get_material("MgF2").nk(550.0).real
+        assert s.back_layers[0].thickness_nm == pytest.approx(0.5 * 550 / (4 * n_mgf2),
+                                                              rel=1e-12)
+        assert s.free == (FreeParameter("layers[2].nm", 20.0, 5.0, 40.0),)
+
+    def test_round_trip_writes_library_names(self, tmp_path):
+        s = load_stack(write(tmp_path, self.TEXT))
+        save_stack(s, tmp_path / "out.yaml")
+        text = (tmp_path / "out.yaml").read_text()
+        for name in ("incident: air", "material: fused-silica", "material: TiO2",
+                     "material: SiO2", "material: MgF2", "exit: air"):
+            assert name in text
+        assert load_stack(tmp_path / "out.yaml") == s
+
+    def test_alias_and_case_are_written_as_the_library_name(self, tmp_path):
+        s = load_stack(write(tmp_path, "substrate: Fused-Silica\nlayers: []\n"))
+        save_stack(s, tmp_path / "out.yaml")
+        assert "substrate: fused-silica\n" in (tmp_path / "out.yaml").read_text()
+        assert load_stack(tmp_path / "out.yaml") == s
+
+    def test_crown_glass_substrate(self, tmp_path):
+        s = load_stack(write(tmp_path, "substrate: crown-glass\nlayers: "
+                                       "[{material: MgF2, nm: 99.6}]\n"))
+        assert s.substrate.name == "crown-glass" and s.substrate_mm is None
+
+    def test_unknown_name_lists_nearest(self, tmp_path):
+        err = error_of(tmp_path, "substrate: crown-glass\nlayers:\n"
+                                 "  - {material: TiO3, nm: 10}\n")
+        assert err.key == "layers[0].material" and err.line == 3
+        assert "unknown material 'TiO3'" in str(err) and "TiO2" in str(err)
+
+    def test_reference_outside_the_data(self, tmp_path):
+        err = error_of(tmp_path, "substrate: crown-glass\nreference_nm: 150\nlayers:\n"
+                                 "  - {material: SiO2, qwot: 1}\n")
+        assert err.key == "layers[0].qwot" and err.line == 4
+        assert "material 'SiO2' has data from 252 to 1250 nm" in str(err)
+
+    def test_users_own_materials_by_name_and_by_path(self, tmp_path):
+        mine = tmp_path / "mine"
+        mine.mkdir()
+        (mine / "larkspur-hi.yaml").write_text(
+            "name: larkspur-hi\nmodel: constant\nn: 2.1\n"
+            "source: synthetic example of a user's own film (Larkspur Optics)\n")
+        (tmp_path / "film.csv").write_text(
+            "# synthetic n,k of a user's film\nwavelength_nm,n,k\n400,1.50,0.001\n800,1.48,0\n")
+        s = load_stack(write(tmp_path, """
+            substrate: crown-glass
+            materials_dir: mine
+            layers:
+              - {material: larkspur-hi, nm: 60}
+              - {material: film.csv, nm: 90}
+        """))
+        assert s.layers[0].material.n == 2.1
+        assert s.layers[1].material.nk(600.0) == pytest.approx(1.49 + 0.0005j)
+        save_stack(s, tmp_path / "out.yaml", materials_dir="mine")
+        text = (tmp_path / "out.yaml").read_text()
+        assert "material: larkspur-hi" in text and "material: film.csv" in text
+        assert load_stack(tmp_path / "out.yaml") == s
