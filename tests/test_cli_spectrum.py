@@ -227,6 +227,24 @@ class TestPhysicsThroughTheCli:
         assert d["R"][0][1] == pytest.approx(expected, rel=1e-10)
         assert d["R"][0][0] > expected and d["R"][0][2] > expected    # the minimum is at λ0
 
+    def test_materials_dir(self, tmp_path):
+        # the user's own material file, found through --materials-dir; a quarter wave of it on
+        # n = 1.52 gives R = ((n0 ns - n1²) / (n0 ns + n1²))² at λ0 (Macleod, 4th ed., §4.1)
+        folder = tmp_path / "mine"
+        folder.mkdir()
+        (folder / "larkspur-mgf2.yaml").write_text(
+            "name: larkspur-mgf2\nsource: Larkspur Optics, synthetic example for a test\n"
+            "model: constant\nn: 1.38\n")
+        p = self._file(tmp_path, "substrate: {n: 1.52}\nreference_nm: 550\n"
+                                 "layers:\n  - {material: larkspur-mgf2, qwot: 1}\n")
+        result = run(p, "--from", 550, "--to", 560, "--step", 10, "--materials-dir", folder,
+                     "--json")
+        assert result.exit_code == 0, result.output
+        expected = ((1.52 - 1.38 ** 2) / (1.52 + 1.38 ** 2)) ** 2
+        assert json.loads(result.stdout)["R"][0][0] == pytest.approx(expected, rel=1e-10)
+        without = run(p, "--from", 550, "--to", 560, "--step", 10)
+        assert without.exit_code == 2 and "larkspur-mgf2" in without.stderr
+
 
 # -- bad input: exit 2, one line naming the problem, and no output file left behind ----------------
 LENS = "substrate: crown-glass\nlayers:\n  - {material: TiO2, nm: 12}\n  - {material: SiO2, nm: 90}\n"
@@ -251,6 +269,8 @@ BAD_INPUTS = {
     "not a number": (LENS, ["--step", "fast"], ["--step"]),
     "unknown option": (LENS, ["--colour"], ["--colour"]),
     "bad show": (LENS, ["--show", "X"], ["--show", "'X'"]),
+    "missing materials folder": (LENS, ["--materials-dir", "nowhere"],
+                                 ["--materials-dir", "nowhere"]),
 }
 
 

@@ -10,9 +10,10 @@ What lives here (and nowhere else):
 - **Validation of common options**, before any work is done: :func:`wavelength_grid`
   (``--from/--to/--step``), :func:`check_angles` (``--angle``), :func:`parse_polarization`
   (``--pol``), :func:`parse_range` (``--range NM:NM``), :func:`check_output` (``--out``,
-  ``--plot``, ``--report``), :func:`require_file`, :func:`check_wavelengths_in_range`.
+  ``--plot``, ``--report``), :func:`require_file`, :func:`material_folders`
+  (``--materials-dir``), :func:`check_wavelengths_in_range`.
   Reusable option declarations: :data:`FromNm`, :data:`ToNm`, :data:`StepNm`, :data:`AngleDeg`,
-  :data:`Pol`, :data:`JsonFlag`.
+  :data:`Pol`, :data:`JsonFlag`, :data:`MaterialsDir`.
 - **Output**: :func:`print_json` (pure JSON on stdout; numpy arrays become lists, NaN and ±inf
   become ``null``), :func:`make_table` / :func:`print_table` (rich tables on stdout),
   :func:`print_cautions` and :func:`warn` (stderr), the cautions of DESIGN.md §7 as constants.
@@ -42,10 +43,11 @@ from ..io.json_out import dumps_json, to_jsonable
 __all__ = [
     "EXIT_OK", "EXIT_FAILED", "EXIT_INPUT", "EXIT_INTERNAL", "EXIT_INTERRUPTED",
     "CAUTION_MODEL", "CAUTION_LASER", "CAUTION_COLOUR", "CAUTIONS",
-    "FromNm", "ToNm", "StepNm", "AngleDeg", "Pol", "JsonFlag",
+    "FromNm", "ToNm", "StepNm", "AngleDeg", "Pol", "JsonFlag", "MaterialsDir",
     "POLARIZATIONS", "STATE",
     "wavelength_grid", "check_angles", "parse_polarization", "parse_polarizations",
     "parse_range", "check_output", "require_file", "check_wavelengths_in_range",
+    "material_folders",
     "to_jsonable", "dumps_json", "print_json", "make_table", "print_table", "stdout_console",
     "stderr_console", "print_cautions", "warn", "Progress", "fmt_pct",
 ]
@@ -98,6 +100,10 @@ Pol = Annotated[list[str] | None, typer.Option(
     help="Polarisation: s, p or mean (unpolarised); repeat for several.")]
 JsonFlag = Annotated[bool, typer.Option(
     "--json", help="Print the result as JSON on stdout (nothing else goes to stdout).")]
+MaterialsDir = Annotated[list[Path] | None, typer.Option(
+    "--materials-dir", "-m", metavar="DIR",
+    help="Folder of your own material files, searched before the bundled library; repeat for "
+         "several (later ones first).", show_default=False)]
 
 
 # --- validation -----------------------------------------------------------------------------
@@ -231,6 +237,18 @@ def require_file(path: str | os.PathLike, *, what: str = "file") -> Path:
     if not os.access(p, os.R_OK):
         raise InputError(f"cannot read {what}: no permission", file=str(path))
     return p
+
+
+def material_folders(dirs: Iterable[str | os.PathLike] | None, *,
+                     option: str = "--materials-dir") -> tuple[Path, ...]:
+    """The folders of ``--materials-dir``, each checked to exist (order kept)."""
+    out = []
+    for d in dirs or ():
+        p = Path(d).expanduser()
+        if not p.is_dir():
+            raise InputError(f"{option}: folder not found: {d}")
+        out.append(p)
+    return tuple(out)
 
 
 def check_wavelengths_in_range(stack, wavelength_nm, *, file: str | None = None,

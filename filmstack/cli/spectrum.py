@@ -14,10 +14,10 @@ from typing import Annotated
 import numpy as np
 import typer
 
-from ._common import (AngleDeg, CAUTION_MODEL, FromNm, JsonFlag, Pol, StepNm, ToNm, check_angles,
-                      check_output, check_wavelengths_in_range, fmt_pct, make_table,
-                      parse_polarizations, print_cautions, print_json, print_table,
-                      wavelength_grid)
+from ._common import (AngleDeg, CAUTION_MODEL, FromNm, JsonFlag, MaterialsDir, Pol, StepNm, ToNm,
+                      check_angles, check_output, check_wavelengths_in_range, fmt_pct,
+                      make_table, material_folders, parse_polarizations, print_cautions,
+                      print_json, print_table, wavelength_grid)
 from ..errors import InputError
 
 __all__ = ["register", "spectrum_command", "parse_quantities"]
@@ -104,6 +104,7 @@ def spectrum_command(
         "--show", metavar="R,T,A",
         help="Quantities in the table and plot [default: R and T, and A when the stack absorbs].",
         show_default=False)] = None,
+    materials_dir: MaterialsDir = None,
     json_out: JsonFlag = False,
 ) -> None:
     # 1. every option, before any work
@@ -113,11 +114,12 @@ def spectrum_command(
     quantities = parse_quantities(show)
     out_target = check_output(out, ("csv", "json"), option="--out")
     plot_target = check_output(plot, ("png", "svg"), option="--plot")
+    folders = material_folders(materials_dir)
 
     # 2. the stack file, then its materials against the grid
     from ..io.stack_file import load_stack
 
-    stack = load_stack(stack_file)
+    stack = load_stack(stack_file, search_paths=folders)
     check_wavelengths_in_range(stack, wl, file=str(stack_file))
 
     # 3. the computation: one call per polarisation, all angles and wavelengths at once
