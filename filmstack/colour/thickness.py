@@ -200,7 +200,7 @@ class Candidate:
     def to_dict(self) -> dict:
         """JSON-ready: thickness_nm, delta_e, Lab and srgb_hex (of the first observation), and
         per-observation lists."""
-        return {"thickness_nm": self.thickness_nm, "delta_e": self.delta_e,
+        return {"thickness_nm": round(self.thickness_nm, 3), "delta_e": self.delta_e,
                 "Lab": list(self.Lab[0]), "srgb_hex": self.srgb_hex[0],
                 "delta_e_each": list(self.delta_e_each),
                 "Lab_each": [list(x) for x in self.Lab],
