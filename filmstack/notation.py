@@ -75,7 +75,7 @@ class NotationError(InputError):
 
 
 def check_symbol_name(name) -> str:
-    """Return ``name`` if it is a valid notation symbol (one ASCII letter), else raise InputError."""
+    """``name`` if it is a valid notation symbol (one ASCII letter); else an InputError."""
     if not (isinstance(name, str) and len(name) == 1 and name in _LETTERS):
         raise InputError(f"a notation symbol must be a single letter (A-Z or a-z), got {name!r}")
     return name

@@ -235,7 +235,8 @@ class _Reader:
         out = []
         for i, item in enumerate(items):
             ikey = f"{key}[{i}]"
-            m = self.mapping(item, ikey, "a layer {material: …, nm: …} or {material: …, qwot: …}")
+            m = self.mapping(item, ikey,
+                             "a layer {material: …, nm: …} or {material: …, qwot: …}")
             self.keys(m, _LAYER_KEYS, ikey)
             if "material" not in m:
                 raise self.error("missing 'material' (expected e.g. {material: SiO2, nm: 95.2})",
@@ -556,9 +557,10 @@ def stack_to_mapping(stack: Stack, *, search_paths=(), materials_dir: str | None
     ``search_paths``/``materials_dir``), else by the path of the material file they were read
     from (relative to ``base_dir``), else inline ``{n:, k:}`` when they are constants (with
     ``name`` when it is not the default label); the default media
-    (:data:`~filmstack.stack.AIR`) are left out when the library's ``air`` differs from them. Thicknesses are written in nm
-    with full float precision; free thicknesses as ``{fit: d, min:, max:}`` with ``d`` the
-    layer's current thickness.
+    (:data:`~filmstack.stack.AIR`) are left out when the library's ``air`` differs from them.
+    Thicknesses are written in nm with full float precision; free thicknesses as
+    ``{fit: d, min:, max:}`` with ``d`` the layer's current thickness (``min``/``max`` left out
+    when infinite).
 
     Raises
     ------
