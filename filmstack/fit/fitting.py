@@ -235,7 +235,7 @@ def fit_spectrum(model: FitModel, measurement: Measurement, *, global_search: bo
         rms=float(np.sqrt(np.mean((F - Y) ** 2))), chi2_reduced=chi2, n_points=int(Y.size),
         x=x, stack=model.stack_at(x), measurement=measurement, model_values=F,
         warnings=tuple(warns), alternatives=tuple(alternatives),
-        success=bool(best.success), message=str(best.message), nfev=nfev)
+        success=bool(best.success), message=str(best.message), nfev=nfev, model=model)
 
 
 def fit_map(model: FitModel, measured: MeasuredSet | Sequence[Measurement], *,

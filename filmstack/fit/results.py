@@ -120,6 +120,8 @@ class FitResult:
         Other distinct minima found by the global stage: ``(x, rms)`` pairs, best first.
     success, message, nfev
         From the local optimiser (scipy.optimize.least_squares).
+    model
+        The :class:`~filmstack.fit.FitModel` that was fitted.
     """
 
     parameters: tuple[FitValue, ...]
@@ -137,6 +139,19 @@ class FitResult:
     success: bool = True
     message: str = ""
     nfev: int = 0
+    model: object = None
+
+    def model_at(self, channel, wavelength_nm) -> np.ndarray:
+        """The fitted model for ``channel``'s quantity, angle and polarisation at other
+        wavelengths (nm, shape (W,)), with any fitted shift and scale applied: e.g. a smooth
+        curve for a plot."""
+        from ..io.measured import Channel
+        from ._evaluate import Evaluator
+
+        wl = np.asarray(wavelength_nm, dtype=float)
+        ch = Channel(channel.quantity, channel.angle_deg, channel.polarization, wl,
+                     np.zeros_like(wl))
+        return Evaluator(self.model, [ch])(self.x[None])[0][0]
 
     def __getitem__(self, name: str) -> FitValue:
         for p in self.parameters:

@@ -53,6 +53,14 @@ def _fmt_value(value: float, stderr: float, unit: str) -> str:
     return f"{value:.{digits}f} ± {stderr:.{digits}f}{u}"
 
 
+def _fine_grid(wl: np.ndarray) -> np.ndarray:
+    """A grid over the measured range at most 1 nm apart (at most 3000 points), for a smooth
+    fitted curve; the measured wavelengths themselves if they are already that dense."""
+    lo, hi = float(wl[0]), float(wl[-1])
+    n = int(min(3000, max(wl.size, math.ceil(hi - lo) + 1)))
+    return np.linspace(lo, hi, n) if n > wl.size else wl
+
+
 def plot_fit(result, *, title: str | None = None, subtitle: str | None = None,
              caption: str | None = _CAPTION):
     """Measured (points) and fitted (lines) spectra in %, with residuals below.
@@ -73,7 +81,9 @@ def plot_fit(result, *, title: str | None = None, subtitle: str | None = None,
     from matplotlib.figure import Figure
 
     with rc_context(_STYLE):
-        fig = Figure(figsize=(WIDTH_IN, 6.2), dpi=DPI, layout="constrained")
+        n_lines = len(result.parameters) + 1 + (result.chi2_reduced is not None) \
+            + result.ambiguous
+        fig = Figure(figsize=(WIDTH_IN, 6.0 + 0.16 * n_lines), dpi=DPI, layout="constrained")
         gs = fig.add_gridspec(2, 1, height_ratios=(3, 1.3))
         ax = fig.add_subplot(gs[0])
         axr = fig.add_subplot(gs[1], sharex=ax)
@@ -87,7 +97,11 @@ def plot_fit(result, *, title: str | None = None, subtitle: str | None = None,
             else:
                 ax.plot(wl, 100 * ch.value, "o", ms=2.4, color=colour, alpha=0.55,
                         label=f"{label}, measured")
-            ax.plot(wl, 100 * model, "-", lw=1.4, color=colour, label=f"{label}, fitted")
+            fine = _fine_grid(wl)
+            curve = result.model_at(ch, fine) if (result.model is not None and
+                                                  fine.size > wl.size) else model
+            ax.plot(fine if curve is not model else wl, 100 * curve, "-", lw=1.4, color=colour,
+                    label=f"{label}, fitted")
             axr.plot(wl, 100 * (ch.value - model), "o", ms=2.0, color=colour, alpha=0.7)
         axr.axhline(0.0, color="#6b6b6b", lw=0.8)
         ax.set_ylabel("Measured and fitted (%)")
@@ -102,10 +116,9 @@ def plot_fit(result, *, title: str | None = None, subtitle: str | None = None,
             lines.append(f"reduced χ² = {result.chi2_reduced:.3g}")
         if result.ambiguous:
             lines.append("AMBIGUOUS: another minimum fits almost as well")
-        ax.text(0.99, 0.02, "\n".join(lines), transform=ax.transAxes, ha="right", va="bottom",
-                fontsize=8.5, family="monospace",
-                bbox={"boxstyle": "round,pad=0.4", "fc": "white", "ec": "#d9d6cf",
-                      "alpha": 0.92})
+        # The fitted values go between the panels, where they cover no data.
+        axr.set_title("\n".join(lines), loc="left", fontsize=8.5, family="monospace",
+                      fontweight="normal", color="#2b2b2b")
         head = title or f"Fit of {result.measurement.site or 'measurement'}"
         if subtitle:
             ax.set_title(f"{head}\n", loc="left")
@@ -159,7 +172,7 @@ def plot_map(result, name: str | None = None, *, title: str | None = None,
     unit = result.units[j]
     u = result.uniformity(name)
     with rc_context({**_STYLE, "axes.grid": False}):
-        fig = Figure(figsize=(WIDTH_IN * 0.85, WIDTH_IN * 0.78), dpi=DPI, layout="constrained")
+        fig = Figure(figsize=(WIDTH_IN * 0.8, WIDTH_IN * 0.8), dpi=DPI, layout="constrained")
         ax = fig.add_subplot()
         cmap = "viridis"
         vmin, vmax = float(np.min(v[ok])), float(np.max(v[ok]))
@@ -173,8 +186,12 @@ def plot_map(result, name: str | None = None, *, title: str | None = None,
                                           vmax=vmax, alpha=0.9)
             except (ValueError, RuntimeError):   # collinear sites: points only
                 mappable = None
-        sc = ax.scatter(x[ok], y[ok], c=v[ok], cmap=cmap, vmin=vmin, vmax=vmax, s=14,
-                        edgecolors="white", linewidths=0.4, zorder=3)
+        if mappable is not None:      # the contours carry the values; sites as small dots
+            sc = ax.scatter(x[ok], y[ok], s=4, c="#2b2b2b", linewidths=0, zorder=3,
+                            label="sites")
+        else:
+            sc = ax.scatter(x[ok], y[ok], c=v[ok], cmap=cmap, vmin=vmin, vmax=vmax, s=40,
+                            edgecolors="#2b2b2b", linewidths=0.4, zorder=3)
         flagged = ok & (np.asarray(result.ambiguous) | np.asarray(result.at_bound).any(axis=1))
         if flagged.any():
             ax.scatter(x[flagged], y[flagged], marker="x", s=30, c="#d1495b", zorder=4,
@@ -197,12 +214,12 @@ def plot_map(result, name: str | None = None, *, title: str | None = None,
         ax.set_xlabel("x (mm)")
         ax.set_ylabel("y (mm)")
         uu = f" {unit}" if unit else ""
-        summary = (f"{u.n_sites} sites   mean {u.mean:.5g}{uu}   range {u.range:.4g}{uu}   "
-                   f"σ {u.sigma:.4g}{uu}   non-uniformity (max−min)/(2·mean) "
-                   f"{100 * u.nonuniformity:.3g} %")
-        ax.set_title(title or f"Map of {name}", loc="left")
-        ax.text(0.0, 1.0, summary, transform=ax.transAxes, fontsize=8.5, color="#4a4a4a",
-                va="bottom")
+        summary = (f"{u.n_sites} sites: mean {u.mean:.5g}{uu}, range {u.range:.4g}{uu} "
+                   f"({u.minimum:.5g} to {u.maximum:.5g}), σ {u.sigma:.4g}{uu}\n"
+                   f"non-uniformity (max − min)/(2·mean) = {100 * u.nonuniformity:.3g} %")
+        fig.suptitle(title or f"Map of {name}", x=0.02, ha="left", fontsize=11,
+                     fontweight="bold")
+        ax.set_title(summary, loc="left", fontsize=8.5, color="#4a4a4a", fontweight="normal")
         if caption:
             fig.supxlabel(caption, fontsize=7.5, color="#8a8a8a", x=0.01, ha="left")
     return fig, ax
