@@ -369,6 +369,8 @@ def evaluate_requirements(stack, spec_or_requirements, *, refine: int = 1,
         else:  # pragma: no cover - the loader refuses other quantities
             raise InputError(f"{req.key}: unknown quantity {req.quantity!r}")
         value, margin, wwl, wang = reduce_values(req, vals, wl)
+        if req.quantity == "colour":                  # a colour has no worst wavelength
+            wwl = np.full(np.shape(value), np.nan)
         if N is None:
             value, margin, wwl, wang = (float(x) for x in (value, margin, wwl, wang))
             passed = bool(margin >= 0)

@@ -21,7 +21,7 @@ A spec file has these top-level keys (only ``stack`` and ``requirements`` are re
     fixed: {bottom: [{material: Al2O3, nm: 5}], top: [{material: SiO2, nm: 10}]}  # optional
     requirements:
       - R: "<= 0.5%"             # quantity: condition
-        band_nm: [420, 680]      # [x, x] is a single wavelength
+        band_nm: [420, 680]      # [x, x] is a single wavelength (colour: default [380, 780])
         step_nm: 2               # optional sampling step (default: see filmstack.evaluate)
         angles_deg: [0, 15, 30]
         polarization: mean       # s | p | mean (phase, GD, GDD: s or p; default s)
@@ -329,8 +329,8 @@ def parse_condition(text, quantity: str = "R") -> Condition:
                          f"(got '{text}')")
     if tol is not None and tol < 0:
         raise ValueError(f"the tolerance in '{text}' must be >= 0")
-    limit = value * f1
-    tolerance = 0.0 if tol is None else tol * f2
+    limit = _scaled(value, f1)
+    tolerance = 0.0 if tol is None else _scaled(tol, f2)
     if not (math.isfinite(limit) and math.isfinite(tolerance)):
         raise ValueError(f"condition '{text}' has a number that is not finite")
     if quantity in ("R", "T", "A"):
@@ -339,9 +339,15 @@ def parse_condition(text, quantity: str = "R") -> Condition:
                     else "")
             raise ValueError(f"{quantity} limit {_fmt_pct(limit)} in '{text}' is outside 0–100 %"
                              f"{hint}")
-    if quantity == "colour" and limit < 0:
-        raise ValueError(f"a colour difference ΔE2000 is >= 0, got '{text}'")
     return Condition(op, limit, tolerance)
+
+
+def _scaled(x: float, factor: float) -> float:
+    """x · factor, exact in decimal for percent (0.35 % → 0.0035, not 0.0034999999999999996)."""
+    if factor == 0.01:
+        from decimal import Decimal
+        return float(Decimal(repr(x)) / 100)
+    return x * factor
 
 
 def _fmt_pct(x):
@@ -740,6 +746,8 @@ def _parse_requirement(item, ctx, key):
     except ValueError as exc:
         raise ctx.error(qkey, str(exc)) from None
 
+    if "band_nm" not in item and q == "colour":
+        item = {**item, "band_nm": [380.0, 780.0]}   # colour integrates the CIE range
     if "band_nm" not in item:
         raise ctx.error(_join(key, "band_nm"), "missing 'band_nm': give [from, to] in nm "
                                                "([x, x] for one wavelength)")
