@@ -9,6 +9,7 @@ from .errors import ExtrapolationWarning, FilmstackError, InputError, OutOfRange
 from .materials import Constant, Material, get_material, list_materials, material_from_spec
 from .stack import AIR, FreeParameter, Layer, Stack, nm_to_qwot, qwot_to_nm
 from .io.stack_file import load_stack, save_stack
+from .notation import format_notation, parse_notation
 from .response import (FieldProfile, PhaseResponse, Spectrum, SpectrumDerivatives, field_profile,
                        phase_response, spectrum, spectrum_derivatives)
 
@@ -20,4 +21,5 @@ __all__ = [
     "material_from_spec", "nm_to_qwot", "qwot_to_nm",
     "FieldProfile", "PhaseResponse", "Spectrum", "SpectrumDerivatives", "field_profile",
     "phase_response", "spectrum", "spectrum_derivatives", "load_stack", "save_stack",
+    "format_notation", "parse_notation",
 ]
