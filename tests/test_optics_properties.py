@@ -7,6 +7,8 @@ medium), r the ratio of tangential electric fields with η_s = N cosθ, η_p = N
 
 from __future__ import annotations
 
+import os
+
 import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
@@ -16,7 +18,9 @@ from filmstack.optics import coherent_derivatives, coherent_response, stack_vect
 
 WL = np.array([420.0, 555.0, 730.0])
 
-SETTINGS = settings(max_examples=30, deadline=None,
+# Modest, reproducible example counts for CI; FILMSTACK_HYPOTHESIS_EXAMPLES=1000 for a deeper run.
+SETTINGS = settings(max_examples=int(os.environ.get("FILMSTACK_HYPOTHESIS_EXAMPLES", "30")),
+                    deadline=None, derandomize="FILMSTACK_HYPOTHESIS_EXAMPLES" not in os.environ,
                     suppress_health_check=[HealthCheck.too_slow])
 
 
