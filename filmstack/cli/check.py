@@ -105,8 +105,9 @@ def _requirement_table(check, title):
     for i, r in enumerate(check.requirements):
         req = r.requirement
         lo, hi = req.band_nm
-        angles = ",".join(f"{a:g}" for a in req.angles_deg)
-        where = f"at {lo:g} nm" if lo == hi else f"{req.over} {lo:g}–{hi:g} nm"
+        angles = "/".join(f"{a:g}" for a in req.angles_deg)
+        where = f"at {lo:g} nm" if lo == hi else \
+            f"{'avg' if req.over == 'average' else 'every'} {lo:g}–{hi:g} nm"
         what = f"{req.quantity} {where}, {angles}°, {req.polarization}"
         if req.quantity in ("phase", "GD", "GDD", "colour"):
             what += f", {req.side}"
@@ -154,10 +155,11 @@ def _sensitivity_table(sens, stack, top):
 def _yield_table(mc):
     table = make_table("#", "requirement", ("pass %", "right"), ("interval %", "right"),
                        ("p5", "right"), ("median", "right"), ("p95", "right"),
-                       title=(f"Monte Carlo: yield {100 * mc.yield_:.1f} % "
-                              f"[{100 * mc.ci[0]:.1f}, {100 * mc.ci[1]:.1f}] "
-                              f"({mc.confidence * 100:g} % Clopper–Pearson), {mc.trials} trials, "
-                              f"seed {mc.seed}"))
+                       title=(f"Monte Carlo yield {100 * mc.yield_:.1f} % "
+                              f"[{100 * mc.ci[0]:.1f}–{100 * mc.ci[1]:.1f}], {mc.trials} trials, "
+                              f"seed {mc.seed}"),
+                       caption=f"{mc.confidence * 100:g} % exact (Clopper–Pearson) intervals; "
+                               "percentiles over the trials")
     for i, r in enumerate(mc.requirements):
         req = r.requirement
         table.add_row(str(i + 1), f"{req.quantity} {req.text}", f"{100 * r.pass_fraction:.1f}",
