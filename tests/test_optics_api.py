@@ -116,6 +116,23 @@ class TestBatches:
             np.testing.assert_allclose(der.dR[b], oned.dR, rtol=0, atol=1e-13)
             np.testing.assert_allclose(der.dT[b], oned.dT, rtol=0, atol=1e-13)
 
+    def test_batched_media_equal_per_element(self):
+        # batch dimensions on the incident and exit indices broadcast against the layers
+        rng = np.random.default_rng(7)
+        N, d = random_batch(rng, B=1)
+        n0 = rng.uniform(1.0, 1.5, (4, WL.size))
+        ne = rng.uniform(1.4, 1.8, (4, WL.size)) + 0.01j
+        res = coherent_response(N[0], d[0], n0, ne, WL, ANG, "p")
+        der = coherent_derivatives(N[0], d[0], n0, ne, WL, ANG, "p")
+        sv = stack_vectors(N[0], d[0], n0, ne, WL, ANG, "p")
+        for b in range(4):
+            one = coherent_response(N[0], d[0], n0[b], ne[b], WL, ANG, "p")
+            np.testing.assert_allclose(res.r[b], one.r, rtol=0, atol=1e-14)
+            oned = coherent_derivatives(N[0], d[0], n0[b], ne[b], WL, ANG, "p")
+            np.testing.assert_allclose(der.dr[b], oned.dr, rtol=0, atol=1e-13)
+            onev = stack_vectors(N[0], d[0], n0[b], ne[b], WL, ANG, "p")
+            np.testing.assert_allclose(sv.v[b], onev.v, rtol=0, atol=1e-13)
+
     def test_stack_level_batch_equals_per_element(self):
         st = make_stack()
         rng = np.random.default_rng(3)

@@ -3,6 +3,10 @@ derivatives against finite differences, and the identities of ``stack_vectors``.
 
 Conventions: exp(−iωt), N = n + ik (k >= 0), layers in deposition order (index 0 touches the exit
 medium), r the ratio of tangential electric fields with η_s = N cosθ, η_p = N/cosθ.
+
+Section and equation numbers of the textbooks cited (Born & Wolf, Principles of Optics, 7th ed.;
+Macleod, Thin-Film Optical Filters, 4th ed.) are given from memory; every formula used is
+written out beside its check, so it can be verified independently of the numbering.
 """
 
 from __future__ import annotations

@@ -12,6 +12,10 @@ eq. (21)) is defined with the opposite orientation of the p reference vector: r_
 Their t_⊥, t_∥ (full-field amplitude ratios) equal our t_s, t_p.
 
 Stacks are built with inline constant media so the tests don't depend on the materials library.
+
+Section and equation numbers of the textbooks cited (Born & Wolf, Principles of Optics, 7th ed.;
+Macleod, Thin-Film Optical Filters, 4th ed.) are given from memory; every formula used is
+written out beside its check, so it can be verified independently of the numbering.
 """
 
 from __future__ import annotations

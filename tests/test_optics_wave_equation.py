@@ -22,6 +22,10 @@ solution splits into incident a·exp(i k_z0 z) and reflected b·exp(−i k_z0 z)
   with |E|² = |E_x|² + |E_z|², E_z = −k_x H_y/(k0 ε) for p.
 
 This A is computed from the fields, not as 1 − R − T, so R + T + A = 1 is a real check here.
+
+Section and equation numbers of the textbooks cited (Born & Wolf, Principles of Optics, 7th ed.;
+Macleod, Thin-Film Optical Filters, 4th ed.) are given from memory; every formula used is
+written out beside its check, so it can be verified independently of the numbering.
 """
 
 from __future__ import annotations

@@ -5,6 +5,10 @@ substrate), r the ratio of tangential electric fields (η_s = N cosθ, η_p = N/
 full electric-field amplitudes; group delay GD = dφ/dω (fs), GDD = d²φ/dω² (fs²).
 Stacks use inline constant media (plus one small dispersive model defined here), so these tests
 do not depend on the materials library.
+
+Section and equation numbers of the textbooks cited (Born & Wolf, Principles of Optics, 7th ed.;
+Macleod, Thin-Film Optical Filters, 4th ed.) are given from memory; every formula used is
+written out beside its check, so it can be verified independently of the numbering.
 """
 
 from __future__ import annotations
