@@ -90,11 +90,13 @@ def _where(res):
     parts = []
     if math.isfinite(float(res.worst_wavelength_nm)):
         parts.append(f"{float(res.worst_wavelength_nm):g} nm")
+    elif res.requirement.quantity == "colour":
+        pass
     elif res.requirement.band_nm[0] != res.requirement.band_nm[1]:
         parts.append("band mean")
     else:
         parts.append(f"{res.requirement.band_nm[0]:g} nm")
-    if len(res.requirement.angles_deg) > 1 or res.requirement.angles_deg[0] != 0:
+    if len(res.requirement.angles_deg) > 1 or res.requirement.angles_deg[0] != 0 or not parts:
         parts.append(f"{float(res.worst_angle_deg):g}°")
     return ", ".join(parts)
 
@@ -108,6 +110,8 @@ def _requirement_table(check, title):
         angles = "/".join(f"{a:g}" for a in req.angles_deg)
         where = f"at {lo:g} nm" if lo == hi else \
             f"{'avg' if req.over == 'average' else 'every'} {lo:g}–{hi:g} nm"
+        if req.quantity == "colour":
+            where = "(CIELAB)"
         what = f"{req.quantity} {where}, {angles}°, {req.polarization}"
         if req.quantity in ("phase", "GD", "GDD", "colour"):
             what += f", {req.side}"
