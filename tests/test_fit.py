@@ -189,7 +189,7 @@ class TestJacobian:
         model = model_from_stack(st, fit_block={
             "index_scale": {"SiO2": {"fit": 1.01, "min": 0.9, "max": 1.1}},
             "cauchy": {"Ta2O5": {"A": {"fit": 2.05, "min": 1.8, "max": 2.4},
-                                 "B": {"fit": 2.0e4, "min": 0, "max": 1e5}, "C": 1e8}},
+                                 "B": {"fit": 0.02, "min": 0, "max": 0.1}, "C": 1e-4}},
             "wavelength_shift_nm": {"fit": 0.7, "min": -3, "max": 3},
             "scale": {"fit": 0.98, "min": 0.9, "max": 1.1}})
         wl = np.arange(450.0, 800.0, 7.0)
@@ -210,20 +210,21 @@ class TestJacobian:
 
 class TestOtherParameters:
     def test_cauchy_film_thickness_and_coefficients(self):
-        # A film with n = 1.62 + 9000/λ² on fused silica (Malitson 1965 via the library).
+        # A film with n = 1.62 + 0.009/λ² (λ in µm) on fused silica (Malitson 1965 via the
+        # library).
         sub = fs.get_material("fused-silica")
         film = Constant(name="film", n=1.6)
-        n_true = 1.62 + 9000.0 / WL**2
+        n_true = 1.62 + 0.009 / (WL * 1e-3) ** 2
         rng = np.random.default_rng(5)
         y = airy_R(n_true, 640.0, sub.nk(WL), WL) + rng.normal(0, 0.001, WL.size)
         st = Stack(incident=AIR, substrate=sub, layers=(Layer(film, 600.0),),
                    free=(FreeParameter("layers[0].nm", 600.0, 400.0, 900.0),))
         model = model_from_stack(st, fit_block={"cauchy": {"film": {
-            "A": {"fit": 1.6, "min": 1.4, "max": 1.8}, "B": {"fit": 5000, "min": 0,
-                                                             "max": 40000}}}})
+            "A": {"fit": 1.6, "min": 1.4, "max": 1.8}, "B": {"fit": 0.005, "min": 0,
+                                                             "max": 0.04}}}})
         r = fit_spectrum(model, measurement(y))
         for name, truth in (("layers[0].nm", 640.0), ("fit.cauchy.film.A", 1.62),
-                            ("fit.cauchy.film.B", 9000.0)):
+                            ("fit.cauchy.film.B", 0.009)):
             p = r[name]
             assert abs(p.value - truth) < 4.5 * p.stderr, (name, p.value, p.stderr)
         # Thickness and index trade off (the optical thickness n·d sets the fringes), so their

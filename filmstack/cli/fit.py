@@ -104,7 +104,6 @@ def _single_caption(result) -> str:
                     pairs.append(f"ρ({names[a]}, {names[b]}) = {rho:+.3f}")
         if pairs:
             parts.append("correlations: " + ", ".join(pairs))
-    parts.append("1σ standard errors from the Jacobian and the residual variance")
     return "; ".join(parts) + "."
 
 

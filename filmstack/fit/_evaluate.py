@@ -8,7 +8,7 @@ global search — through the engine's batch dimensions:
 - thickness derivatives come from :func:`filmstack.response.spectrum_derivatives` (analytic);
 - index parameters (scale, Cauchy) from one batched forward call in which the real index of each
   parametrised material is raised by ``H_INDEX`` (a forward difference; the chain rule then gives
-  ∂/∂s = n₀ ∂/∂n, ∂/∂A = ∂/∂n, ∂/∂B = λ⁻² ∂/∂n, ∂/∂C = λ⁻⁴ ∂/∂n, since the value at λ depends
+  ∂/∂s = n₀ ∂/∂n, ∂/∂A = ∂/∂n, ∂/∂B = λ⁻² ∂/∂n, ∂/∂C = λ⁻⁴ ∂/∂n (λ in µm), since the value at λ depends
   only on n(λ));
 - a wavelength shift from a forward difference of ``H_SHIFT_NM``;
 - a photometric scale c exactly: ∂(c·Q)/∂c = Q.
@@ -172,5 +172,6 @@ class Evaluator:
             dn = {q: (np.asarray(getattr(res, q))[:, k] - Q[q]) / H_INDEX for q in ("R", "T")}
             n0 = N0[grp["layers"][0]].real                                   # (W,)
             for coef, j in grp["params"].items():
-                factor = {"s": n0, "A": 1.0, "B": wl**-2.0, "C": wl**-4.0}[coef]
+                um = wl * 1e-3                                     # λ in µm
+                factor = {"s": n0, "A": 1.0, "B": um**-2.0, "C": um**-4.0}[coef]
                 self._gather_col(g, {q: v * factor for q, v in dn.items()}, J, j)

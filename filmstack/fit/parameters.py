@@ -13,7 +13,8 @@ parameter name                         meaning
 ``fit.index_scale.<M>``                factor on the real index n of every layer of material
                                        ``<M>`` (k kept): N = s·n + ik
 ``fit.cauchy.<M>.A`` / ``.B`` / ``.C`` Cauchy coefficients replacing n of material ``<M>``:
-                                       n(λ) = A + B/λ² + C/λ⁴, λ in nm (B in nm², C in nm⁴); k
+                                       n(λ) = A + B/λ² + C/λ⁴ with λ in µm (B in µm², C in
+                                       µm⁴, as in the material files); k
                                        of the material is kept
 ``fit.wavelength_shift_nm``            correction added to the measured wavelength axis, nm
                                        (instrument calibration)
@@ -27,7 +28,7 @@ by :func:`parse_fit_block`::
 
     fit:
       index_scale: {SiO2: {fit: 1.0, min: 0.95, max: 1.05}}
-      cauchy: {TiO2: {A: {fit: 2.2, min: 1.9, max: 2.6}, B: {fit: 2.0e4, min: 0, max: 1.0e5}}}
+      cauchy: {TiO2: {A: {fit: 2.2, min: 1.9, max: 2.6}, B: {fit: 0.02, min: 0, max: 0.1}}}
       wavelength_shift_nm: {fit: 0, min: -2, max: 2}
       scale: {fit: 1.0, min: 0.9, max: 1.1}
 
@@ -83,7 +84,7 @@ class Parameter:
     nm_per_unit
         For a thickness: nm per unit of the parameter (1 for ``.nm``; λ_ref/(4n) for ``.qwot``).
     unit
-        Unit for display (``nm``, ``nm²``, …; empty for a factor).
+        Unit for display (``nm``, ``µm²``, …; empty for a factor).
     """
 
     name: str
@@ -121,7 +122,8 @@ class ScaledIndexMaterial(Material):
 
 @dataclass(frozen=True)
 class CauchyMaterial(Material):
-    """n(λ) = A + B/λ² + C/λ⁴ (λ in nm), with the extinction k of ``base`` (0 without one).
+    """n(λ) = A + B/λ² + C/λ⁴ with λ in µm (B in µm², C in µm⁴, the unit of the material
+    files' ``cauchy`` model), with the extinction k of ``base`` (0 without one).
 
     References: A.-L. Cauchy (1836); e.g. M. Born and E. Wolf, *Principles of Optics*, 7th ed.,
     §2.3.4 (the dispersion formula; from memory).
@@ -133,7 +135,8 @@ class CauchyMaterial(Material):
     C: float = 0.0
 
     def _nk(self, wl):
-        n = self.A + self.B / wl**2 + self.C / wl**4
+        um = wl * 1e-3
+        n = self.A + self.B / um**2 + self.C / um**4
         k = self.base.nk(wl).imag if self.base is not None else 0.0
         return n + 1j * k
 
@@ -243,7 +246,8 @@ class FitModel:
                 A = _value(X, g, "A")[..., None, None]
                 B = _value(X, g, "B")[..., None, None]
                 C = _value(X, g, "C")[..., None, None]
-                N[..., idx, :] = A + B / wl**2 + C / wl**4 + 1j * k0
+                um = wl * 1e-3
+                N[..., idx, :] = A + B / um**2 + C / um**4 + 1j * k0
         return N
 
     def stack_at(self, x) -> Stack:
@@ -443,8 +447,8 @@ def parse_fit_block(block, stack: Stack, *, file: str | None = None,
                     params.append(Parameter(path, "index_scale", start, lo, hi, layers))
             else:
                 if not isinstance(value, dict) or "A" not in value:
-                    raise InputError("a Cauchy model needs A (and optionally B in nm², C in "
-                                     "nm⁴): {A: {fit: 1.46, min: 1.3, max: 1.7}, B: 3500}",
+                    raise InputError("a Cauchy model needs A (and optionally B in µm², C in "
+                                     "µm⁴): {A: {fit: 1.46, min: 1.3, max: 1.7}, B: 0.0035}",
                                      file=file, key=path, line=lines.get(path))
                 coefs = {}
                 for c, v in value.items():
@@ -456,7 +460,7 @@ def parse_fit_block(block, stack: Stack, *, file: str | None = None,
                                                  DEFAULT_BOUNDS[f"cauchy.{c}"])
                     coefs[c] = start
                     if free:
-                        unit = {"A": "", "B": "nm²", "C": "nm⁴"}[c]
+                        unit = {"A": "", "B": "µm²", "C": "µm⁴"}[c]
                         params.append(Parameter(f"{path}.{c}", "cauchy", start, lo, hi, layers,
                                                 coefficient=c, unit=unit))
                 cauchy[mkey] = coefs

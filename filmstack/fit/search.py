@@ -79,7 +79,8 @@ def _max_index(model: FitModel, layer: int, wl: np.ndarray) -> float:
                 else:
                     p = model.parameters[j]
                     coefs[c] = p.upper if math.isfinite(p.upper) else p.value
-            n = float(np.max(coefs["A"] + coefs["B"] / wl**2 + coefs["C"] / wl**4))
+            um = wl * 1e-3
+            n = float(np.max(coefs["A"] + coefs["B"] / um**2 + coefs["C"] / um**4))
     return max(n, 1.0)
 
 
