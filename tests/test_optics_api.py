@@ -271,8 +271,6 @@ class TestBadInput:
         with pytest.raises(ValueError, match=r"n_exit"):
             coherent_response(N.real + 0j, make_stack().thicknesses_nm, 1.0, 1.5 - 0.1j, WL, 0.0)
 
-    @pytest.mark.xfail(strict=True, reason="engine messages name the engine's arguments "
-                       "(n_layers) rather than spectrum()'s layer_indices; reported")
     def test_override_errors_name_the_api_argument(self):
         N = make_stack().layer_indices(WL).copy()
         N[2] = 1.9 - 0.1j

@@ -76,10 +76,16 @@ class Problem:
         return self.nb * self.A * self.W
 
 
+def fmt(x) -> str:
+    """A number for a message: plain Python repr, not numpy's (``-5.0``, not ``np.float64(-5.0)``)."""
+    x = np.asarray(x).item()
+    return repr(x)
+
+
 def _finite(name, a):
     if not np.all(np.isfinite(a)):
         bad = a[~np.isfinite(a)].ravel()[0]
-        raise InputError(f"{name} must be finite, got {bad!r}")
+        raise InputError(f"{name} must be finite, got {fmt(bad)}")
 
 
 def prepare(n_layers, thickness_nm, n_incident, n_exit, wavelength_nm, angle_deg,
@@ -92,7 +98,7 @@ def prepare(n_layers, thickness_nm, n_incident, n_exit, wavelength_nm, angle_deg
         raise InputError(f"wavelength_nm must be a non-empty 1-D array, got shape {wl.shape}")
     _finite("wavelength_nm", wl)
     if np.any(wl <= 0):
-        raise InputError(f"wavelength_nm must be > 0, got {wl.min()!r}")
+        raise InputError(f"wavelength_nm must be > 0, got {fmt(wl.min())}")
     W = wl.size
 
     theta = np.atleast_1d(np.asarray(angle_deg, dtype=float))
@@ -101,7 +107,7 @@ def prepare(n_layers, thickness_nm, n_incident, n_exit, wavelength_nm, angle_deg
     _finite("angle_deg", theta)
     if np.any(theta < 0) or np.any(theta >= 90):
         bad = theta[(theta < 0) | (theta >= 90)][0]
-        raise InputError(f"angle_deg must be in [0, 90) degrees, got {bad!r}")
+        raise InputError(f"angle_deg must be in [0, 90) degrees, got {fmt(bad)}")
     rad = np.deg2rad(theta)
     invariant = None
     if snell_invariant is not None:
@@ -114,9 +120,9 @@ def prepare(n_layers, thickness_nm, n_incident, n_exit, wavelength_nm, angle_deg
                          f"got shape {N.shape}")
     _finite("n_layers", N)
     if np.any(N.imag < 0):
-        raise InputError(f"n_layers: k must be >= 0 (absorption), got k = {N.imag.min()!r}")
+        raise InputError(f"n_layers: k must be >= 0 (absorption), got k = {fmt(N.imag.min())}")
     if np.any(N.real <= 0):
-        raise InputError(f"n_layers: n must be > 0, got n = {N.real.min()!r}")
+        raise InputError(f"n_layers: n must be > 0, got n = {fmt(N.real.min())}")
     L = N.shape[-2]
 
     d = np.asarray(thickness_nm, dtype=float)
@@ -124,7 +130,7 @@ def prepare(n_layers, thickness_nm, n_incident, n_exit, wavelength_nm, angle_deg
         raise InputError(f"thickness_nm must have shape (..., L) with L = {L} layers, got shape {d.shape}")
     _finite("thickness_nm", d)
     if np.any(d < 0):
-        raise InputError(f"thickness_nm must be >= 0, got {d.min()!r}")
+        raise InputError(f"thickness_nm must be >= 0, got {fmt(d.min())}")
 
     n0 = np.asarray(n_incident, dtype=complex)
     if n0.ndim == 0:

@@ -268,6 +268,12 @@ def _top(terms, p, B, C, ls):
 # Public functions
 
 
+def _stored_chunk(L: int) -> int:
+    """Points per chunk when the fields at all L+1 interfaces are stored (bounded memory)."""
+    from . import _grid
+    return max(1, min(_grid.CHUNK_POINTS, max(256, 2 ** 21 // max(L, 1))))
+
+
 def _out_shape(problem: Problem):
     return problem.batch + (problem.A, problem.W)
 
@@ -521,8 +527,7 @@ def coherent_derivatives(n_layers, thickness_nm, n_incident, n_exit, wavelength_
                 r_all[start:stop] = r
                 t_all[start:stop] = t
 
-    # Smaller chunks: the stored fields are (L+1) times the size of a chunk.
-    run_chunks(work, problem, chunk=max(256, min(8192, 2 ** 21 // max(L, 1))))
+    run_chunks(work, problem, chunk=_stored_chunk(L))
     shape = _out_shape(problem)
     dshape = problem.batch + (L, problem.A, problem.W)
 
@@ -617,7 +622,7 @@ def stack_vectors(n_layers, thickness_nm, n_incident, n_exit, wavelength_nm, ang
         eta_exit[start:stop] = terms["etae"][polarization]
         r_all[start:stop] = r
 
-    run_chunks(work, problem, chunk=max(256, min(8192, 2 ** 21 // max(L, 1))))
+    run_chunks(work, problem, chunk=_stored_chunk(L))
     shape = _out_shape(problem)
     nbd = len(problem.batch)
 
