@@ -150,3 +150,11 @@ class TestBadInput:
         bad.write_text(SPEC.read_text().replace('"<= 0.35%"', '"<= 0.35 %%"'))
         self._bad(PASS, "--spec", bad, "--report", folder)
         assert not folder.exists()
+
+
+def test_help_examples_name_shipped_files():
+    import re
+
+    from filmstack.cli.check import HELP
+    names = set(re.findall(r"examples/[\w.-]+\.yaml", HELP))
+    assert len(names) >= 4 and all((ROOT / n).is_file() for n in names)

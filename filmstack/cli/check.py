@@ -41,7 +41,7 @@ Examples:
     filmstack check examples/quote-lens-ar-pass.yaml --spec examples/spec-lens-ar.yaml \\
         --trials 10000 --seed 7 --report check-report
     filmstack check examples/quote-lens-ar-pass.yaml --spec examples/spec-lens-ar.yaml \\
-        --compare examples/asbuilt-lens-ar.yaml
+        --compare examples/quote-lens-ar-asbuilt.yaml
 """
 
 
