@@ -36,9 +36,10 @@ reports them).
 The residual vector :math:`\mathbf r` (:math:`r_{ik} = \sqrt{w_i/(W N_i)}\, v_{ik}/s_i`) and its
 Jacobian with respect to the free thicknesses come from the engine's analytic derivatives
 (``filmstack.response.spectrum_derivatives``): an inactive inequality contributes a zero row, the
-band average averages the derivative rows, and GD/GDD are central differences of the phase in
-angular frequency (relative step ``PHASE_STEP``), so their derivatives are the same differences of
-the phase derivatives. The gradient is :math:`\nabla F = 2 J^\mathsf{T}\mathbf r`.
+band average averages the derivative rows, and GD/GDD are five-point central differences of the phase in
+angular frequency (relative step ``PHASE_STEP``, on wrapped phase differences, as
+``filmstack.response.phase_response`` computes them for ordinary group delays), so their
+derivatives are the same differences of the phase derivatives. The gradient is :math:`\nabla F = 2 J^\mathsf{T}\mathbf r`.
 
 References: J. A. Dobrowolski, "Completely automatic synthesis of optical thin film systems",
 Appl. Opt. 4, 937 (1965) (merit as a sum of squared deviations from targets); A. V. Tikhonravov,
@@ -68,6 +69,7 @@ PHASE_STEP = 1e-3
 SPEED_OF_LIGHT_NM_PER_FS = 299.792458
 
 _PHASE_QUANTITIES = ("phase", "GD", "GDD")
+_OFFSETS = (-2, -1, 0, 1, 2)          # ω(1 + kδ): five-point central differences
 
 
 def _wrap(x):
@@ -195,7 +197,7 @@ class Merit:
             gi = keys[gkey]
             grp = self._groups[gi]
             if req.quantity in ("GD", "GDD"):
-                grid = np.concatenate([wl / (1.0 - PHASE_STEP), wl, wl / (1.0 + PHASE_STEP)])
+                grid = np.concatenate([wl / (1.0 + k * PHASE_STEP) for k in _OFFSETS])
             else:
                 grid = wl
             grp.phase = grp.phase or req.quantity in _PHASE_QUANTITIES
@@ -330,6 +332,26 @@ class Merit:
             res.append(_band_average(t, q) if t.requirement.over == "average" else q)
         return res
 
+    def satisfied(self, design: Design, value: float | None = None) -> bool:
+        """True when every target holds at every sample with at least half the design margin
+        (the least-squares search approaches a margin boundary from outside and may stop a hair
+        short of it): inequalities within their accepted interval widened by half the margin,
+        ``=`` targets within (1 − margin_fraction/2) × tolerance. ``value`` (the merit of
+        ``design``) saves an evaluation when it is 0.
+        """
+        if value is not None and value <= 0.0:
+            return True
+        for t, q in zip(self.targets, self.target_values(design)):
+            req = t.requirement
+            half = 0.5 * self.margin_fraction * t.scale
+            if req.op == "=":
+                dev = _wrap(q - t.lo) if req.quantity == "phase" else q - t.lo
+                if not np.all(np.abs(dev) <= req.tolerance * (1.0 - 0.5 * self.margin_fraction)):
+                    return False
+            elif not (np.all(q <= t.hi + half) and np.all(q >= t.lo - half)):
+                return False
+        return True
+
     def free_columns(self, stack_layers: int) -> slice:
         """Columns of the free layers among all front layers."""
         nb = len(self.problem.fixed_bottom)
@@ -412,16 +434,19 @@ def _target_values(t: Target, vals: dict, ders: dict | None):
     w = t.wavelengths_nm.size
     omega = 2.0 * math.pi * SPEED_OF_LIGHT_NM_PER_FS / t.wavelengths_nm     # rad/fs
     h = PHASE_STEP * omega
-    # grid layout: [λ/(1-δ) (ω−h), λ (ω), λ/(1+δ) (ω+h)]
-    pm, p0, pp = phi[..., :w], phi[..., w:2 * w], phi[..., 2 * w:]
+    # grid layout: blocks of W at ω(1 + kδ), k = −2, −1, 0, 1, 2; phase differences to ω
+    blk = {k: slice(i * w, (i + 1) * w) for i, k in enumerate(_OFFSETS)}
+    p0 = phi[..., blk[0]]
+    dlt = {k: _wrap(phi[..., blk[k]] - p0) for k in (-2, -1, 1, 2)}
     if dphi is not None:
-        dm, d0, dp = dphi[..., :w], dphi[..., w:2 * w], dphi[..., 2 * w:]
+        d0 = dphi[..., blk[0]]
+        ddl = {k: dphi[..., blk[k]] - d0 for k in (-2, -1, 1, 2)}
     if qn == "GD":
-        q = _wrap(pp - pm) / (2 * h)
-        dq = None if dphi is None else (dp - dm) / (2 * h)
+        wts, div = {-2: 1.0, -1: -8.0, 1: 8.0, 2: -1.0}, 12.0 * h
     else:
-        q = (_wrap(pp - p0) + _wrap(pm - p0)) / h ** 2
-        dq = None if dphi is None else (dp - 2 * d0 + dm) / h ** 2
+        wts, div = {-2: -1.0, -1: 16.0, 1: 16.0, 2: -1.0}, 12.0 * h ** 2
+    q = sum(c * dlt[k] for k, c in wts.items()) / div
+    dq = None if dphi is None else sum(c * ddl[k] for k, c in wts.items()) / div
     return q, dq
 
 

@@ -435,7 +435,7 @@ def needle_optimise(merit, design: Design, value: float, *, refine, clock, accep
     small = 0
     while True:
         clock.check()
-        if value <= 0.0:
+        if merit.satisfied(design, value):
             return design, value, "every target met"
         if small >= patience:
             return design, value, f"{patience} needle steps in a row gained less than " \
@@ -494,7 +494,7 @@ def gradual_evolution(merit, design: Design, value: float, *, refine, clock, acc
     ref = problem.template.reference_nm
     while True:
         clock.check()
-        if best_val <= 0.0:
+        if merit.satisfied(best, best_val):
             return best, best_val, "every target met"
         lim = problem.free_max_layers
         if lim is not None and len(current) + 1 > lim:

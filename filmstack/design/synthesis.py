@@ -56,8 +56,7 @@ class DesignResult:
     merit
         Merit of the design on the spec's sampling (0: every target met with margin).
     fine_merit
-        Merit without margin on the 4× finer sampling (0: every optimised requirement passes
-        there).
+        Merit without margin on the 4× finer sampling (0 when every inequality holds there).
     history
         One dict per accepted improvement: ``step``, ``stage``, ``layers`` (front layers),
         ``total_nm``, ``merit``, ``elapsed_s``. The merit never rises along it.
@@ -200,11 +199,11 @@ def synthesize(spec, *, seed: int = 0, time_limit_s: float | None = 60.0,
         if strategy in ("auto", "needle", "evolution"):
             d, v, message = needle_optimise(merit, d, v, refine=do_refine, clock=clock,
                                             accept=accept, step_nm=step_nm)
-        if strategy in ("auto", "evolution") and v > 0:
+        if strategy in ("auto", "evolution") and not merit.satisfied(d, v):
             d, v, message = gradual_evolution(merit, d, v, refine=do_refine, clock=clock,
                                               accept=accept, step_nm=step_nm)
         d, v = state["design"], state["value"]
-        for _ in range(restarts if v > 0 else 0):
+        for _ in range(0 if merit.satisfied(d, v) else restarts):
             clock.check()
             factors = 1.0 + 0.1 * rng.uniform(-1.0, 1.0, len(d))
             trial = _fit_limits(problem, d.with_d(d.d * factors))
@@ -221,20 +220,23 @@ def synthesize(spec, *, seed: int = 0, time_limit_s: float | None = 60.0,
     d, v = state["design"], state["value"]
     fine = Merit(problem, spec.requirements, refine=4, margin_fraction=0.0)
     fine_v = fine.value(d)
-    if fine_v > 0 and v == 0 and clock.left > 0 and not (stop is not None and stop()):
-        # the spec's sampling hides a failure: polish on the fine grid, keep it if the
-        # spec-grid merit stays where it was
+    fine_ok = fine.satisfied(d, fine_v)
+    if (not fine_ok and merit.satisfied(d, v) and clock.left > 0
+            and not (stop is not None and stop())):
+        # the spec's sampling hides a failure between its samples: polish on the fine grid and
+        # keep the result if it passes there and the spec-grid merit does not rise
         try:
             fine_m = Merit(problem, spec.requirements, refine=4, margin_fraction=margin_fraction)
             t, _ = refine(fine_m, d, method=method, clock=clock)
             tv = merit.value(t)
-            if tv <= v and not problem.violations(t) and fine.value(t) < fine_v:
+            if tv <= v and not problem.violations(t) and fine.satisfied(t):
                 accept(t, tv, "fine polish")
                 d, v = state["design"], state["value"]
                 fine_v = fine.value(d)
+                fine_ok = fine.satisfied(d, fine_v)
         except (TimeUp, KeyboardInterrupt):
             pass
-    success = fine_v == 0.0
+    success = bool(fine_ok)
     if success:
         message = message + "; every optimised requirement passes on the 4x finer sampling"
     return DesignResult(stack=problem.stack(d), design=d, merit=float(v), fine_merit=float(fine_v),

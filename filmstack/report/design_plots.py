@@ -115,15 +115,7 @@ def plot_design_spectra(stack, requirements, *, wavelengths_nm=None, title=None,
                 ax.plot(wl, vals, color=colour, linestyle=LINESTYLES.get(pol, "-"), lw=1.5,
                         label=label, zorder=4)
                 allv.append(vals)
-            v = np.concatenate(allv)
-            lims = np.array([r.limit * _QSCALE[q] for r in qreqs])
-            lo, hi = float(np.nanmin(np.r_[v, lims])), float(np.nanmax(np.r_[v, lims]))
-            if q in ("R", "T", "A"):
-                lo, hi = max(lo, 0.0), min(hi, 100.0)
-                if hi - lo < 1.0:
-                    hi = lo + 1.0
-            pad = 0.06 * (hi - lo if hi > lo else 1.0)
-            ax.set_ylim(lo - pad if q not in ("R", "T", "A") or lo > 0 else 0.0, hi + pad)
+            ax.set_ylim(*_panel_limits(q, wl, allv, qreqs))
             for r in qreqs:
                 _draw_target(ax, r, _QSCALE[q])
             ax.set_ylabel(_QLABEL[q])
@@ -138,6 +130,30 @@ def plot_design_spectra(stack, requirements, *, wavelengths_nm=None, title=None,
                          va="bottom", fontsize=8.5, color="#6b6b6b")
         _caption(fig, caption)
     return fig, axes
+
+
+def _panel_limits(q, wl, curves, reqs):
+    """Vertical range from the values inside the requirement bands and the limits (± tolerance),
+    so that a target is readable even when the curve swings far outside its bands."""
+    scale = _QSCALE[q]
+    inside = np.zeros(wl.size, bool)
+    marks = []
+    for r in reqs:
+        lo, hi = r.band_nm
+        inside |= (wl >= lo - 1e-9) & (wl <= hi + 1e-9)
+        marks += [r.limit * scale - r.tolerance * scale, r.limit * scale + r.tolerance * scale]
+    vals = np.concatenate([c[inside] for c in curves] + [np.asarray(marks)])
+    vals = vals[np.isfinite(vals)]
+    vmin, vmax = float(vals.min()), float(vals.max())
+    span = vmax - vmin
+    if q in ("R", "T", "A"):
+        span = max(span, 0.5)
+    elif span <= 0:
+        span = max(abs(vmax), 1.0)
+    lo, hi = vmin - 0.3 * span, vmax + 0.3 * span
+    if q in ("R", "T", "A"):
+        lo, hi = max(lo, 0.0), min(hi, 100.0)
+    return lo, hi
 
 
 def _caption(fig, caption):
