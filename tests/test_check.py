@@ -31,7 +31,8 @@ def mirror(pairs):
 
 
 def mirror_peak(pairs):
-    # Macleod, Thin-Film Optical Filters, 4th ed., §5.1 (quarter-wave stack, 2N+1 layers, air):
+    # Macleod, Thin-Film Optical Filters, 4th ed., ch. 5 (quarter-wave stack, 2N+1 layers, air;
+    # chapter number from memory):
     # R = ((1 − (nH/nL)^(2N) nH²/ns) / (1 + (nH/nL)^(2N) nH²/ns))²
     y = (NH / NL) ** (2 * pairs) * NH ** 2 / NS
     return ((1 - y) / (1 + y)) ** 2
@@ -146,7 +147,7 @@ class TestMonteCarlo:
         # One quarter-wave layer (n1 = 1.38) on glass at 550 nm with R ≤ limit passes for a
         # thickness interval [a, b] around the quarter wave. The single-film reflectance
         #   R = (r1² + r2² + 2 r1 r2 cos 2δ) / (1 + r1² r2² + 2 r1 r2 cos 2δ),  δ = 2π n1 d / λ
-        # (Born & Wolf, Principles of Optics, 7th ed., §1.6.4; Macleod, 4th ed., §2.x) gives
+        # (Born & Wolf, Principles of Optics, 7th ed., §1.6.4; section number from memory) gives
         # cos 2δ at R = limit in closed form, hence a and b. With d = d0 (1 + σ z), z standard
         # normal, the yield is Φ((b/d0 − 1)/σ) − Φ((a/d0 − 1)/σ).
         limit, sigma = 0.0127, 0.03

@@ -93,7 +93,8 @@ class TestReduce:
 
 class TestJustMeets:
     """A single quarter-wave layer at 550 nm: R = ((n0·ns − n1²)/(n0·ns + n1²))²
-    (Macleod, Thin-Film Optical Filters, 4th ed., §3.2, single-layer antireflection coating)."""
+    (Macleod, Thin-Film Optical Filters, 4th ed., ch. 4, single-layer antireflection coating;
+    chapter number from memory)."""
 
     R_QW = ((1.0 * 1.52 - 1.38 ** 2) / (1.0 * 1.52 + 1.38 ** 2)) ** 2
 
