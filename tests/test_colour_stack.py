@@ -115,3 +115,31 @@ class TestDeltaEStacks:
         # equals ΔE2000 of the two colours (Sharma, Wu & Dalal 2005 via colour-science)
         np.testing.assert_allclose(de, cm.delta_e_2000(stack_colour(a, [0, 30]).Lab,
                                                        stack_colour(b, [0, 30]).Lab))
+
+
+class TestColourGrid:
+    def test_material_from_400_nm_gets_a_cut_grid_and_a_warning(self):
+        # ASTM E308-18: a truncated range is handled by holding the spectrum at its end values
+        # (tails added to the end weights); for a smooth single-film spectrum the colour moves by
+        # well under one unit
+        from filmstack.colour.stack_colour import colour_wavelengths
+        from filmstack.errors import FilmstackWarning
+
+        short = Constant(name="film-from-400", n=2.3, range_nm=(400.0, 1000.0))
+        full = Constant(name="film-full", n=2.3)
+        st = Stack(incident=AIR, substrate=GLASS, layers=(Layer(short, 60.0),))
+        with pytest.warns(FilmstackWarning, match="400-780 nm"):
+            wl = colour_wavelengths(st.materials)
+        assert wl[0] == 400.0 and wl[-1] == 780.0
+        c = stack_colour(st)
+        ref = stack_colour(Stack(incident=AIR, substrate=GLASS, layers=(Layer(full, 60.0),)))
+        assert np.max(np.abs(c.XYZ - ref.XYZ)) < 1.0
+        assert cm.delta_e_2000(c.Lab, ref.Lab)[0] < 1.0
+
+    def test_material_without_400_700_is_refused(self):
+        from filmstack.errors import OutOfRangeError
+
+        narrow = Constant(name="ir-only", n=2.0, range_nm=(450.0, 2000.0))
+        st = Stack(incident=AIR, substrate=GLASS, layers=(Layer(narrow, 60.0),))
+        with pytest.raises(OutOfRangeError, match="ir-only.*400-700"):
+            stack_colour(st)

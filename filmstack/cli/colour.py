@@ -189,18 +189,18 @@ def colour_command(
     plot_target = check_output(plot, ("png", "svg"), option="--plot")
 
     from ..colour import colorimetry as cm
-    from ..colour.stack_colour import stack_colour
+    from ..colour.stack_colour import colour_wavelengths, stack_colour
+    from ..errors import OutOfRangeError
     from ..io.stack_file import load_stack
-    from ._common import check_wavelengths_in_range
 
     stack = load_stack(stack_file)
-    check_wavelengths_in_range(stack, cm.COLOUR_WAVELENGTHS_NM, file=str(stack_file),
-                               options="(colour needs 380-780 nm)")
-    other = None
-    if compare is not None:
-        other = load_stack(compare)
-        check_wavelengths_in_range(other, cm.COLOUR_WAVELENGTHS_NM, file=str(compare),
-                                   options="(colour needs 380-780 nm)")
+    other = None if compare is None else load_stack(compare)
+    for st, f in ((stack, stack_file), (other, compare)):
+        if st is not None:
+            try:
+                colour_wavelengths(st.materials)
+            except OutOfRangeError as exc:
+                raise OutOfRangeError(exc.message, file=str(f)) from None
     c = stack_colour(stack, angles, setting)
     de = c2 = None
     if other is not None:
@@ -235,11 +235,11 @@ def colour_command(
     if de is not None:
         cols.append(("ΔE00", "right"))
     n = len(stack.layers)
-    table = make_table(*cols, title=f"{stack_file.name}: {n} layer{'s' if n != 1 else ''} on "
-                                    f"{stack.substrate.name}; {setting.describe()}",
-                       caption="XYZ on the 0-100 scale (perfect diffuser Y = 100); "
-                               "'!' = outside the sRGB gamut (hex clipped)."
-                               + (f" ΔE00: CIEDE2000 to {compare}." if de is not None else ""))
+    title = (f"{stack_file.name}: {n} layer{'s' if n != 1 else ''} on "
+             f"{stack.substrate.name}; {setting.describe()}")
+    caption = ("XYZ on the 0-100 scale (perfect diffuser Y = 100); '!' = outside the sRGB gamut "
+               "(hex clipped)." + (f" ΔE00: CIEDE2000 to {compare}." if de is not None else ""))
+    table = make_table(*cols)
     for i, a in enumerate(angles):
         L, aa, bb = c.Lab[i]
         row = [f"{a:g}°", _fmt(L), _fmt(aa), _fmt(bb), _fmt(c.LCh[i, 1]), _fmt(c.LCh[i, 2], 1),
@@ -248,7 +248,7 @@ def colour_command(
         if de is not None:
             row.append(_fmt(de[i]))
         table.add_row(*row)
-    print_table(table)
+    print_table(table, title=title, caption=caption)
     for path, _ in files:
         typer.echo(f"wrote {path}")
     print_cautions(CAUTION_MODEL)
@@ -404,12 +404,9 @@ def thickness_command(
     system = FilmSystem(parse_material(film, option="--film"),
                         parse_material(substrate, option="--substrate"), parse_under(under),
                         parse_material(incident, option="--incident"))
-    for m in (system.film, system.substrate, system.incident,
-              *(l.material for l in system.under)):
-        lo_nm, hi_nm = m.range_nm
-        if lo_nm > 380 or hi_nm < 780:
-            raise InputError(f"material '{m.name}' has data from {lo_nm:g} to {hi_nm:g} nm; "
-                             "colour needs 380-780 nm")
+    from ..colour.stack_colour import colour_wavelengths
+
+    colour_wavelengths(system.stack(0.0).materials)      # refuses materials without 400-700 nm
 
     # 2. observations
     notes = []
@@ -478,7 +475,7 @@ def thickness_command(
         cap += (f" Photo white-balanced against bare {system.substrate.name}: linear sRGB gains "
                 f"R {g[0]:.2f}, G {g[1]:.2f}, B {g[2]:.2f}; corrected film colour "
                 f"{correction.corrected_srgb_hex}.")
-    table = make_table(*cols, title=head, caption=cap)
+    table = make_table(*cols)
     for i, c in enumerate(result.candidates, start=1):
         row = [str(i), f"{c.thickness_nm:.1f}", _fmt(c.delta_e)]
         if len(obs) > 1:
@@ -486,7 +483,7 @@ def thickness_command(
         row += [_fmt(c.Lab[0][0], 1), _fmt(c.Lab[0][1], 1), _fmt(c.Lab[0][2], 1),
                 c.srgb_hex[0] + ("!" if c.out_of_gamut[0] else "")]
         table.add_row(*row)
-    print_table(table)
+    print_table(table, title=head, caption=cap)
     for path, _ in files:
         typer.echo(f"wrote {path}")
     for w in list(notes) + list(result.warnings):

@@ -179,16 +179,20 @@ def _values_from_lab(opts, lab):
 
 def _colour(stack, req, thicknesses_nm, index_scale):
     setting = colour_setting(req)
+    from .stack_colour import colour_wavelengths
+
     li = None
+    wl = None
     if index_scale is not None:
         sc = np.asarray(index_scale, dtype=float)
         if sc.shape[-1:] != (len(stack.layers),):
             raise InputError(f"index_scale must end in L = {len(stack.layers)} layers, "
                              f"got shape {sc.shape}")
-        base = stack.layer_indices(cm.COLOUR_WAVELENGTHS_NM)            # (L, W)
+        wl = colour_wavelengths(stack.materials)
+        base = stack.layer_indices(wl)                                   # (L, W)
         li = base.real * sc[..., None] + 1j * base.imag                  # (..., L, W)
     return stack_colour(stack, list(req.angles_deg), setting, thicknesses_nm=thicknesses_nm,
-                        layer_indices=li)
+                        layer_indices=li, wavelengths_nm=wl)
 
 
 def colour_values(stack, requirement, *, thicknesses_nm=None, index_scale=None) -> np.ndarray:

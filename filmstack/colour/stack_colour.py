@@ -30,7 +30,12 @@ from ..errors import InputError
 from . import colorimetry as cm
 
 __all__ = ["ColourSetting", "StackColour", "WHITES", "SIDES", "colour_from_spectra",
-           "stack_colour", "bare_stack", "delta_e_stacks"]
+           "colour_wavelengths", "stack_colour", "bare_stack", "delta_e_stacks",
+           "MIN_COLOUR_RANGE_NM"]
+
+#: The least a stack's materials must cover for a colour: 400–700 nm (outside the 380–780 nm
+#: grid the spectrum is held at its end values, as ASTM E308 does for truncated ranges).
+MIN_COLOUR_RANGE_NM = (400.0, 700.0)
 
 #: Reference whites of CIELAB.
 WHITES = ("diffuser", "bare-substrate")
@@ -175,6 +180,52 @@ def colour_from_spectra(spectra, setting: ColourSetting, *, white_XYZ=None, angl
                        srgb_hex=cm.srgb_to_hex(rgb), out_of_gamut=oog)
 
 
+_WARNED: set = set()       # cut grids already announced in this process
+
+
+def colour_wavelengths(materials) -> np.ndarray:
+    """The colour grid (nm) for a set of materials: 380–780 nm every 5 nm, cut to the range
+    every material covers.
+
+    A material with data over less than 380–780 nm (ZnS from 400 nm, say) still gets a colour
+    when its data cover :data:`MIN_COLOUR_RANGE_NM`: the grid is cut to the common range (on the
+    5 nm steps) and a :class:`~filmstack.errors.FilmstackWarning` says so; the CIE weights then
+    hold the spectrum at its end values beyond the cut (ASTM E308 practice for truncated
+    ranges), which changes XYZ by well under a unit for coatings without features there.
+    The warning is given once per process for each cut grid and set of materials.
+    Otherwise an :class:`~filmstack.errors.OutOfRangeError` names the material.
+    """
+    import warnings
+
+    from ..errors import FilmstackWarning, OutOfRangeError
+
+    wl = cm.COLOUR_WAVELENGTHS_NM
+    lo, hi = float(wl[0]), float(wl[-1])
+    names = []
+    for m in materials:
+        mlo, mhi = m.range_nm
+        if mlo > lo or mhi < hi:
+            names.append(m)
+            lo, hi = max(lo, mlo), min(hi, mhi)
+    if not names:
+        return wl
+    if lo > MIN_COLOUR_RANGE_NM[0] or hi < MIN_COLOUR_RANGE_NM[1]:
+        m = names[-1]
+        raise OutOfRangeError(f"material '{m.name}' has data from {m.range_nm[0]:g} to "
+                              f"{m.range_nm[1]:g} nm; a colour needs at least "
+                              f"{MIN_COLOUR_RANGE_NM[0]:g}-{MIN_COLOUR_RANGE_NM[1]:g} nm "
+                              "(380-780 nm preferred)")
+    cut = wl[(wl >= lo - 1e-9) & (wl <= hi + 1e-9)]
+    key = (float(cut[0]), float(cut[-1]), tuple(sorted({m.name for m in names})))
+    if key in _WARNED:
+        return cut
+    _WARNED.add(key)
+    warnings.warn(f"colour computed over {cut[0]:g}-{cut[-1]:g} nm (not 380-780 nm): "
+                  + ", ".join(sorted({m.name for m in names})) + " has no data beyond; the "
+                  "spectrum is held at its end values there", FilmstackWarning, stacklevel=3)
+    return cut
+
+
 def bare_stack(stack):
     """The uncoated part: ``stack`` without its front layers (back side and media kept)."""
     return replace(stack, layers=(), free=())
@@ -193,7 +244,8 @@ def _side_spectrum(sp, side):
 
 
 def stack_colour(stack, angles_deg=0.0, setting: ColourSetting | None = None, *,
-                 thicknesses_nm=None, layer_indices=None, **setting_kwargs) -> StackColour:
+                 thicknesses_nm=None, layer_indices=None, wavelengths_nm=None,
+                 **setting_kwargs) -> StackColour:
     """Reflected or transmitted colour of ``stack`` at each angle (and each design of a batch).
 
     Parameters
@@ -209,6 +261,9 @@ def stack_colour(stack, angles_deg=0.0, setting: ColourSetting | None = None, *,
         Optional batch of front-layer thicknesses, nm, (..., L): one colour per row.
     layer_indices
         Optional override of the front-layer indices on the colour grid, (..., L, W) complex.
+    wavelengths_nm
+        The colour grid, nm (default :func:`colour_wavelengths` of the stack's materials:
+        380–780 nm every 5 nm when they cover it).
 
     Returns
     -------
@@ -226,7 +281,8 @@ def stack_colour(stack, angles_deg=0.0, setting: ColourSetting | None = None, *,
     elif setting_kwargs:
         setting = replace(setting, **setting_kwargs)
     angles = _check_angles(angles_deg)
-    wl = cm.COLOUR_WAVELENGTHS_NM
+    wl = colour_wavelengths(stack.materials) if wavelengths_nm is None else \
+        np.asarray(wavelengths_nm, dtype=float)
     sp = spectrum(stack, wl, angles, setting.polarization, thicknesses_nm=thicknesses_nm,
                   layer_indices=layer_indices)
     values = _side_spectrum(sp, setting.side)                     # (..., A, W)

@@ -55,7 +55,7 @@ from ..errors import InputError
 from ..materials import Material
 from ..stack import AIR, Layer, Stack
 from . import colorimetry as cm
-from .stack_colour import ColourSetting, bare_stack, stack_colour
+from .stack_colour import ColourSetting, bare_stack, colour_wavelengths, stack_colour
 
 __all__ = ["CAUTION", "FilmSystem", "Observation", "FilmColourTable", "Candidate",
            "ThicknessResult", "PhotoCorrection", "film_colour_table", "film_colour",
@@ -264,6 +264,7 @@ def clear_cache() -> None:
     """Forget every precomputed colour table (frees memory; the next query recomputes)."""
     _TABLES.clear()
     _WHITES.clear()
+    _WAVELENGTHS.clear()
 
 
 def film_colour(system: FilmSystem, film_nm, setting: ColourSetting, angle_deg: float = 0.0):
@@ -411,7 +412,9 @@ def _film_lab(system, setting, angle_deg, t):
         else:
             white = film_colour(system, [0.0], setting, angle_deg).white_XYZ.reshape(-1, 3)[0]
         _WHITES[key] = white
-    wl = cm.COLOUR_WAVELENGTHS_NM
+    wl = _WAVELENGTHS.get(key[0])
+    if wl is None:
+        wl = _WAVELENGTHS[key[0]] = colour_wavelengths(system.stack(0.0).materials)
     sp = spectrum(system.stack(0.0), wl, [float(angle_deg)], setting.polarization,
                   thicknesses_nm=system.thickness_rows(t))
     r = np.asarray(sp.R if setting.side == "reflected" else sp.T, dtype=float)[:, 0]
@@ -420,6 +423,7 @@ def _film_lab(system, setting, angle_deg, t):
 
 
 _WHITES: dict = {}
+_WAVELENGTHS: dict = {}
 
 
 def _delta_e_at(system, observations, t):
