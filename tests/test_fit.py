@@ -18,7 +18,7 @@ import pytest
 
 import filmstack as fs
 from filmstack.errors import InputError, OutOfRangeError
-from filmstack.fit import (FitModel, fit_map, fit_spectrum, load_fit_model, model_from_stack,
+from filmstack.fit import (fit_map, fit_spectrum, load_fit_model, model_from_stack,
                            uniformity)
 from filmstack.fit._evaluate import Evaluator
 from filmstack.io.measured import Channel, Measurement
@@ -273,6 +273,32 @@ class TestOtherParameters:
         r = fit_spectrum(model_from_stack(st), measurement(clean + rng.normal(0, 0.001, WL.size)))
         for name, truth in (("layers[0].nm", 183.0), ("layers[1].nm", 91.0)):
             assert abs(r[name].value - truth) < 4 * r[name].stderr
+
+
+class TestMapLayouts:
+    def test_sites_measured_differently_are_fitted_in_their_own_groups(self):
+        # Two wavelength grids and a second channel (T is ~0 on silicon: R only here, and R at
+        # 45° s) in one map: each group shares its scan; every site gets its own thickness.
+        rng = np.random.default_rng(13)
+        st = oxide_on_si()
+        wl2 = np.arange(450.0, 950.0, 5.0)
+        sites = []
+        truths = [300.0, 305.0, 310.0, 295.0]
+        for i, d in enumerate(truths):
+            if i % 2 == 0:
+                y = airy_oxide_on_si(d) + rng.normal(0, 0.002, WL.size)
+                sites.append(measurement(y, site=f"a{i}"))
+            else:
+                r0 = spectrum(st.with_thicknesses([d]), wl2, 0.0, "mean").R[0]
+                r45 = spectrum(st.with_thicknesses([d]), wl2, 45.0, "s").R[0]
+                sites.append(Measurement(
+                    (Channel("R", 0.0, "mean", wl2, r0 + rng.normal(0, 0.002, wl2.size)),
+                     Channel("R", 45.0, "s", wl2, r45 + rng.normal(0, 0.002, wl2.size))),
+                    f"b{i}"))
+        res = fit_map(model_from_stack(st), sites)
+        for i, d in enumerate(truths):
+            assert abs(res.values[i, 0] - d) < 4 * res.stderr[i, 0]
+        assert res.site == ["a0", "b1", "a2", "b3"]
 
 
 class TestWarnings:

@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from filmstack.errors import InputError, OutOfRangeError
-from filmstack.io.measured import (NOISE_ALLOWANCE, Measurement, check_wavelength_range,
+from filmstack.io.measured import (NOISE_ALLOWANCE, check_wavelength_range,
                                    read_measured, read_measured_text)
 from filmstack.materials import Constant
 from filmstack.stack import AIR, Layer, Stack

@@ -113,7 +113,8 @@ def _map_table(result, model_path: Path, measured_path: Path):
                        ("median ±1σ", "right"), "unit",
                        title=f"Map fit of {measured_path.name} with {model_path.name}: "
                              f"{len(result)} sites",
-                       caption=(f"residual RMS over sites {100 * float(np.sqrt(np.mean(result.rms**2))):.3g} %"
+                       caption=(f"residual RMS over sites "
+                                f"{100 * float(np.sqrt(np.nanmean(result.rms**2))):.3g} %"
                                 f"; non-uniformity = (max - min)/(2 mean); "
                                 f"{int(result.ambiguous.sum())} ambiguous site(s), "
                                 f"{int(result.at_bound.any(axis=1).sum())} on a bound."))

@@ -303,6 +303,7 @@ class MapResult:
                 "warnings": list(self.warnings[i]) if self.warnings else [],
             })
         return {"parameters": params,
-                "rms": float(np.sqrt(np.mean(self.rms**2))) if len(self) else None,
+                "rms": (float(np.sqrt(np.nanmean(self.rms**2)))
+                        if np.isfinite(self.rms).any() else None),
                 "n_sites": len(self), "n_ambiguous": int(self.ambiguous.sum()),
                 "interrupted": self.interrupted, "sites": sites}

@@ -387,6 +387,8 @@ def read_measured_text(text: str, name: str = "<text>", *, percent: bool | None 
     header: list[str] | None = None
     header_line = 0
     rows: list[tuple[int, list[str]]] = []
+    data_lines: list[str] = []
+    data_line_no: list[int] = []
     delimiter = ","
     for lineno, raw in enumerate(text.splitlines(), start=1):
         s = raw.strip()
@@ -407,11 +409,14 @@ def read_measured_text(text: str, name: str = "<text>", *, percent: bool | None 
             header = next(csv.reader([s], delimiter=delimiter))
             header_line = lineno
             continue
-        cells = next(csv.reader([s], delimiter=delimiter))
-        if len(cells) != len(header):
-            raise InputError(f"{len(cells)} cells where the header has {len(header)} columns",
-                             file=file, line=lineno)
-        rows.append((lineno, cells))
+        data_lines.append(s)
+        data_line_no.append(lineno)
+    if header is not None:
+        for lineno, cells in zip(data_line_no, csv.reader(data_lines, delimiter=delimiter)):
+            if len(cells) != len(header):
+                raise InputError(f"{len(cells)} cells where the header has {len(header)} "
+                                 "columns", file=file, line=lineno)
+            rows.append((lineno, cells))
     if header is None:
         raise InputError("no header line: expected column names such as wavelength_nm,R",
                          file=file)
@@ -457,89 +462,142 @@ def read_measured_text(text: str, name: str = "<text>", *, percent: bool | None 
         raise InputError("site given both in a comment and in a column; keep one",
                          file=file, line=meta["site"][1])
 
-    # Group rows into (site) -> (quantity, angle, pol) -> points.
-    sites: dict[str, dict] = {}
+    # Columns as arrays (one pass per column; a bad cell is then found for its message).
     name_of = cols.names
-    for lineno, cells in rows:
-        wl = _number(cells[cols.wavelength], name_of[cols.wavelength], file, lineno)
-        if wl <= 0:
-            raise InputError(f"wavelength {wl:g} nm must be > 0", file=file, line=lineno)
-        if cols.angle is not None:
-            ang = _number(cells[cols.angle], name_of[cols.angle], file, lineno)
-            if not 0.0 <= ang < 90.0:
-                raise InputError(f"angle {ang:g} must be in 0 <= angle < 90 degrees",
-                                 file=file, line=lineno)
-            if angle_deg is not None and ang != angle_deg:
-                raise InputError(f"the file gives angle {ang:g} but angle {angle_deg:g} was "
-                                 "asked for", file=file, line=lineno)
+    line_no = np.fromiter((ln for ln, _ in rows), dtype=np.int64, count=len(rows))
+    text_cols = list(zip(*(cells for _, cells in rows)))
+    n_rows = len(rows)
+
+    def numeric(ci: int) -> np.ndarray:
+        txt = text_cols[ci]
+        try:
+            arr = np.array(txt, dtype=float)
+        except ValueError:
+            arr = None
+        if arr is None or not np.all(np.isfinite(arr)):
+            for ln, t in zip(line_no, txt):          # raises at the first bad cell
+                _number(t, name_of[ci], file, int(ln))
+        return arr
+
+    def first(mask) -> int:
+        return int(np.argmax(mask))
+
+    wl = numeric(cols.wavelength)
+    if np.any(wl <= 0):
+        i = first(wl <= 0)
+        raise InputError(f"wavelength {wl[i]:g} nm must be > 0", file=file, line=int(line_no[i]))
+    if cols.angle is not None:
+        ang = numeric(cols.angle)
+        bad = (ang < 0.0) | (ang >= 90.0)
+        if bad.any():
+            i = first(bad)
+            raise InputError(f"angle {ang[i]:g} must be in 0 <= angle < 90 degrees",
+                             file=file, line=int(line_no[i]))
+        if angle_deg is not None and np.any(ang != angle_deg):
+            i = first(ang != angle_deg)
+            raise InputError(f"the file gives angle {ang[i]:g} but angle {angle_deg:g} was "
+                             "asked for", file=file, line=int(line_no[i]))
+    else:
+        ang = np.full(n_rows, float(file_angle))
+    if cols.polarization is not None:
+        raw_pol = text_cols[cols.polarization]
+        pol = np.array([t.strip().lower() for t in raw_pol])
+        bad = ~np.isin(pol, _POLARIZATIONS)
+        if bad.any():
+            i = first(bad)
+            raise InputError(f"column '{name_of[cols.polarization]}': {raw_pol[i].strip()!r} "
+                             "is not s, p or mean", file=file, line=int(line_no[i]))
+        if polarization is not None and np.any(pol != polarization):
+            i = first(pol != polarization)
+            raise InputError(f"the file gives polarization {pol[i]} but {polarization} was "
+                             "asked for", file=file, line=int(line_no[i]))
+    else:
+        pol = None
+    if cols.site is not None:
+        sid_arr = np.array([t.strip() for t in text_cols[cols.site]])
+        if np.any(sid_arr == ""):
+            i = first(sid_arr == "")
+            raise InputError(f"empty site id in column '{name_of[cols.site]}'", file=file,
+                             line=int(line_no[i]))
+    else:
+        sid_arr = np.full(n_rows, str(site_default))
+    site_names, site_first, site_i = np.unique(sid_arr, return_index=True, return_inverse=True)
+    site_i = site_i.ravel()
+    pos = {}
+    for key, idx, metaval in (("x", cols.x, x_meta), ("y", cols.y, y_meta)):
+        if idx is None:
+            pos[key] = None if metaval is None else np.full(site_names.size, float(metaval))
+            continue
+        v = numeric(idx)
+        ref = v[site_first][site_i]
+        if np.any(v != ref):
+            i = first(v != ref)
+            j = site_first[site_i[i]]
+            raise InputError(f"site '{sid_arr[i]}' has {key} = {ref[i]:g} mm on line "
+                             f"{line_no[j]} but {v[i]:g} mm here; one position per site",
+                             file=file, line=int(line_no[i]))
+        pos[key] = v[site_first]
+
+    # Every measured value as one point: (site, value column, angle, polarisation, wavelength).
+    parts = []
+    pol_names = list(_POLARIZATIONS)
+    for vi, v in enumerate(cols.values):
+        value = numeric(v.index)
+        scale = 0.01 if v.percent else 1.0
+        frac = value * scale
+        bad = (frac < -NOISE_ALLOWANCE) | (frac > 1.0 + NOISE_ALLOWANCE)
+        if bad.any():
+            i = first(bad)
+            _check_value(float(value[i]), scale, v, file, int(line_no[i]))
+        sig = None
+        if v.sigma_index is not None:
+            sig = numeric(v.sigma_index)
+            if np.any(sig <= 0):
+                i = first(sig <= 0)
+                raise InputError(f"column '{v.sigma_name}': uncertainty {sig[i]:g} must be > 0",
+                                 file=file, line=int(line_no[i]))
+            sig = sig * (0.01 if v.sigma_percent else 1.0)
+        if v.polarization is not None:
+            p_i = np.full(n_rows, pol_names.index(v.polarization))
+        elif pol is not None:
+            p_i = np.select([pol == name for name in pol_names], range(len(pol_names)))
         else:
-            ang = float(file_angle)
-        if cols.polarization is not None:
-            pol = cells[cols.polarization].strip().lower()
-            if pol not in _POLARIZATIONS:
-                raise InputError(f"column '{name_of[cols.polarization]}': "
-                                 f"{cells[cols.polarization].strip()!r} is not s, p or mean",
-                                 file=file, line=lineno)
-            if polarization is not None and pol != polarization:
-                raise InputError(f"the file gives polarization {pol} but {polarization} was "
-                                 "asked for", file=file, line=lineno)
-        else:
-            pol = None
-        if cols.site is not None:
-            sid = cells[cols.site].strip()
-            if not sid:
-                raise InputError(f"empty site id in column '{name_of[cols.site]}'", file=file,
-                                 line=lineno)
-        else:
-            sid = str(site_default)
-        site = sites.setdefault(sid, {"x": None, "y": None, "line": lineno, "curves": {}})
-        for key, idx, metaval in (("x", cols.x, x_meta), ("y", cols.y, y_meta)):
-            if idx is None:
-                site[key] = metaval
-                continue
-            val = _number(cells[idx], name_of[idx], file, lineno)
-            if site[key] is None:
-                site[key] = val
-            elif site[key] != val:
-                raise InputError(f"site '{sid}' has {key} = {site[key]:g} mm on line "
-                                 f"{site['line']} but {val:g} mm here; one position per site",
-                                 file=file, line=lineno)
-        for v in cols.values:
-            value = _number(cells[v.index], v.name, file, lineno)
-            scale = 0.01 if v.percent else 1.0
-            _check_value(value, scale, v, file, lineno)
-            sig = None
-            if v.sigma_index is not None:
-                sig = _number(cells[v.sigma_index], v.sigma_name, file, lineno)
-                if sig <= 0:
-                    raise InputError(f"column '{v.sigma_name}': uncertainty {sig:g} must be "
-                                     "> 0", file=file, line=lineno)
-                sig *= 0.01 if v.sigma_percent else 1.0
-            p = v.polarization or pol or file_pol
-            curve = site["curves"].setdefault((v.quantity, ang, p), [])
-            curve.append((wl, value * scale, sig, lineno))
+            p_i = np.full(n_rows, pol_names.index(file_pol))
+        parts.append((vi, frac, sig, p_i))
+    ang_u, ang_i = np.unique(ang, return_inverse=True)
+    ang_i = ang_i.ravel()
+    rows_idx = np.arange(n_rows)
+    out_channels: dict[int, list] = {k: [] for k in range(site_names.size)}
+    for vi, frac, sig, p_i in parts:
+        v = cols.values[vi]
+        order = np.lexsort((wl, p_i, ang_i, site_i))
+        key = (site_i * ang_u.size + ang_i) * len(pol_names) + p_i
+        ks = key[order]
+        cut = np.flatnonzero(np.diff(ks)) + 1
+        for g in np.split(order, cut):
+            w = wl[g]
+            dup = np.flatnonzero(np.diff(w) == 0)
+            s_k, a_k, q_k = site_i[g[0]], ang_i[g[0]], p_i[g[0]]
+            if dup.size:
+                la, lb = sorted((int(line_no[g[dup[0]]]), int(line_no[g[dup[0] + 1]])))
+                where = f" for site '{site_names[s_k]}'" if cols.site is not None else ""
+                raise InputError(f"wavelength {w[dup[0]]:g} nm appears twice{where} for "
+                                 f"{v.quantity} at {ang_u[a_k]:g}° {pol_names[q_k]} (lines "
+                                 f"{la} and {lb})", file=file, line=lb)
+            ch = Channel(v.quantity, float(ang_u[a_k]), pol_names[q_k], w, frac[g],
+                         None if sig is None else sig[g], line_no[g])
+            first_pos = int(rows_idx[g].min()) * len(cols.values) + vi
+            out_channels[s_k].append((first_pos, ch))
 
     out = []
-    for sid, site in sites.items():
-        channels = []
-        for (q, ang, p), pts in site["curves"].items():
-            pts.sort(key=lambda t: t[0])
-            wl = np.array([t[0] for t in pts])
-            dup = np.nonzero(np.diff(wl) == 0)[0]
-            if dup.size:
-                a, b = pts[dup[0]][3], pts[dup[0] + 1][3]
-                where = f" for site '{sid}'" if cols.site is not None else ""
-                raise InputError(f"wavelength {wl[dup[0]]:g} nm appears twice{where} for "
-                                 f"{q} at {ang:g}° {p} (lines {min(a, b)} and {max(a, b)})",
-                                 file=file, line=max(a, b))
-            sig = None if pts[0][2] is None else np.array([t[2] for t in pts])
-            channels.append(Channel(q, float(ang), p, wl, np.array([t[1] for t in pts]), sig,
-                                    np.array([t[3] for t in pts])))
-        x, y = site["x"], site["y"]
+    for k in np.argsort(site_first, kind="stable"):
+        x = None if pos["x"] is None else float(pos["x"][k])
+        y = None if pos["y"] is None else float(pos["y"][k])
         if (x is None) != (y is None):
-            raise InputError(f"site '{sid}' has only one of x_mm, y_mm; give both or neither",
-                             file=file, line=site["line"])
-        out.append(Measurement(tuple(channels), sid, x, y, file))
+            raise InputError(f"site '{site_names[k]}' has only one of x_mm, y_mm; give both or "
+                             "neither", file=file, line=int(line_no[site_first[k]]))
+        chans = tuple(ch for _, ch in sorted(out_channels[k], key=lambda t: t[0]))
+        out.append(Measurement(chans, str(site_names[k]), x, y, file))
     return out
 
 

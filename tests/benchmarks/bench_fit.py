@@ -100,6 +100,23 @@ def bench_map() -> bool:
     yy = rng.uniform(-70, 70, S)
     truth = 1200.0 * (1 - 0.03 * (x**2 + yy**2) / 70**2) + rng.normal(0, 2.0, S)
     R = _spectra(stack, wl, truth) + rng.normal(0, 0.003, (S, wl.size))
+    # The same sites as one long CSV table, read back (the reader's share of a CLI run).
+    import tempfile
+
+    from filmstack.io.measured import read_measured
+
+    with tempfile.TemporaryDirectory() as tmp:
+        path = Path(tmp) / "map.csv"
+        wl_col = np.tile(wl, S)
+        site_col = np.repeat(np.arange(S), wl.size)
+        lines = ["site,x_mm,y_mm,wavelength_nm,R"]
+        lines += [f"s{i},{x[i]:.2f},{yy[i]:.2f},{w:g},{v:.5f}"
+                  for i, w, v in zip(site_col, wl_col, R.ravel())]
+        path.write_text("\n".join(lines) + "\n")
+        t0 = time.perf_counter()
+        data = read_measured(path)
+        tr = time.perf_counter() - t0
+    print(f"reading the map as CSV ({S * wl.size} rows, {len(data.sites)} sites): {tr:.1f} s")
     sites = [Measurement((Channel("R", 0.0, "mean", wl, R[i]),), f"s{i}", float(x[i]),
                          float(yy[i])) for i in range(S)]
     t0 = time.perf_counter()
