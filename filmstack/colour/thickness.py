@@ -404,17 +404,19 @@ def _film_lab(system, setting, angle_deg, t):
     """Lean forward model for the search: CIELAB (M, 3) of the film at thicknesses t (M,)."""
     from ..response import spectrum
 
+    # cache values keep `system` alive, so an id() in a key (unhashable material) stays unique
     key = (system._key(), setting, float(angle_deg))
-    white = _WHITES.get(key)
+    white = _WHITES.get(key, (None,))[0]
     if white is None:
         if setting.white == "diffuser":
             white = setting.diffuser_XYZ
         else:
             white = film_colour(system, [0.0], setting, angle_deg).white_XYZ.reshape(-1, 3)[0]
-        _WHITES[key] = white
-    wl = _WAVELENGTHS.get(key[0])
+        _WHITES[key] = (white, system)
+    wl = _WAVELENGTHS.get(key[0], (None,))[0]
     if wl is None:
-        wl = _WAVELENGTHS[key[0]] = colour_wavelengths(system.stack(0.0).materials)
+        wl = colour_wavelengths(system.stack(0.0).materials)
+        _WAVELENGTHS[key[0]] = (wl, system)
     sp = spectrum(system.stack(0.0), wl, [float(angle_deg)], setting.polarization,
                   thicknesses_nm=system.thickness_rows(t))
     r = np.asarray(sp.R if setting.side == "reflected" else sp.T, dtype=float)[:, 0]
