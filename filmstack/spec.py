@@ -562,50 +562,15 @@ def _stack_from_mapping(data, ctx, prefix):
 
     ``layers`` (or ``design``) may be absent: a spec's stack gives the media.
     """
-    try:
-        from .io.stack_file import stack_from_mapping
-    except ImportError:  # pragma: no cover - the stack-file loader ships with the package
-        return _media_only_stack(data, ctx, prefix)
+    from .io.stack_file import stack_from_mapping
     base_dir = None if ctx.file is None else Path(ctx.file).parent
     return stack_from_mapping(data, file=ctx.file, lines=ctx.lines, key_prefix=prefix,
                               require_layers=False, base_dir=base_dir)
 
 
-def _media_only_stack(data, ctx, prefix):
-    """Fallback reader of incident / substrate / exit / reference_nm and simple nm layers."""
-    ctx.known_keys(data, prefix, ("incident", "substrate", "exit", "reference_nm", "layers"),
-                   "the stack")
-    if "substrate" not in data:
-        raise ctx.error(_join(prefix, "substrate"), "missing 'substrate'")
-    incident = ctx.material(data.get("incident", "air"), _join(prefix, "incident")) \
-        if "incident" in data else AIR
-    sub = data["substrate"]
-    mm = None
-    if isinstance(sub, dict) and "material" in sub:
-        ctx.known_keys(sub, _join(prefix, "substrate"), ("material", "mm"), "the substrate")
-        if "mm" in sub:
-            mm = ctx.number(sub["mm"], _join(prefix, "substrate.mm"), lo=0, lo_open=True)
-        sub = sub["material"]
-    substrate = ctx.material(sub, _join(prefix, "substrate"))
-    exit_ = ctx.material(data["exit"], _join(prefix, "exit")) if "exit" in data else AIR
-    ref = ctx.number(data.get("reference_nm", 550.0), _join(prefix, "reference_nm"), lo=0,
-                     lo_open=True)
-    layers = []
-    for i, item in enumerate(data.get("layers") or []):
-        k = f"{_join(prefix, 'layers')}[{i}]"
-        ctx.mapping(item, k, "a layer {material: ..., nm: ...}")
-        ctx.known_keys(item, k, ("material", "nm"), "a layer")
-        layers.append(Layer(ctx.material(item.get("material"), k + ".material"),
-                            ctx.number(item.get("nm"), k + ".nm", lo=0)))
-    return Stack(incident=incident, substrate=substrate, layers=tuple(layers), substrate_mm=mm,
-                 exit=exit_, reference_nm=ref)
-
-
 def _parse_template(data, ctx):
     ctx.mapping(data, "stack", "a mapping like {incident: air, substrate: crown-glass, "
                                "reference_nm: 550}")
-    data = dict(data)
-    data.setdefault("layers", [])
     return _stack_from_mapping(data, ctx, "stack")
 
 
