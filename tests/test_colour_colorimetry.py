@@ -146,6 +146,19 @@ class TestConversions:
         # the round trip back to XYZ
         np.testing.assert_allclose(cm.Lab_to_XYZ(lab, wn), xyz, atol=1e-9)
 
+    def test_dark_colours_use_the_linear_branch(self):
+        # CIE 15:2018 §8.2.1: below (6/29)³ of the white, f(t) = t/(3(6/29)²) + 4/29; checked
+        # against colour-science XYZ_to_Lab on very dark spectra
+        wl = cm.COLOUR_WAVELENGTHS_NM
+        r = np.random.default_rng(8).random((5, wl.size)) * 1e-3
+        for ill, obs in (("D65", 2), ("A", 10)):
+            xyz = cm.spectra_to_XYZ(r, wl, ill, obs)
+            wn = cm.white_point_XYZ(ill, obs)
+            assert np.all(xyz / wn < (6 / 29) ** 3)
+            np.testing.assert_allclose(cm.XYZ_to_Lab(xyz, wn),
+                                       colour.XYZ_to_Lab(xyz / 100, wn[:2] / wn.sum()),
+                                       atol=1e-9)
+
     def test_white_is_in_gamut_and_ffffff(self):
         for ill in cm.ILLUMINANTS:
             wn = cm.white_point_XYZ(ill, 2)
