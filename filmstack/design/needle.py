@@ -192,14 +192,17 @@ def _analytic_provider(jj, zz, needle_materials):
         L = d.size
         nn = np.stack([merit.material_nk(gi, m) for m in needle_materials])[:, None, :]
         pols = ("s", "p") if g.polarization == "mean" else (g.polarization,)
-        acc_v, acc_d = {}, {}
+        acc_d = {}
         for pol in pols:
-            vals, ders = _needle_one_pol(nk, d, n0, ns, g.grid, g.angles, pol, nn, jj, zz, L,
-                                         stack_vectors)
-            for k in vals:
-                acc_v[k] = acc_v.get(k, 0) + vals[k] / len(pols)
+            ders = _needle_one_pol(nk, d, n0, ns, g.grid, g.angles, pol, nn, jj, zz, L,
+                                   stack_vectors)
+            for k in ders:
                 acc_d[k] = acc_d.get(k, 0) + ders[k] / len(pols)
-        return acc_v, acc_d
+        # the values themselves (residuals) exactly as the merit has them: from the engine
+        from .merit import _engine_values
+
+        vals, _ = _engine_values(merit, gi, stack, nk)
+        return vals, acc_d
 
     return provider
 
@@ -242,13 +245,12 @@ def _needle_one_pol(nk, d, n0, ns, grid, angles, pol, nn, jj, zz, L, stack_vecto
     dR = 2.0 * np.real(np.conj(r) * dr)
     dT = -2.0 * T * np.real(dD / den)
     mn, p = dN.shape[:2]
-    flat = lambda x: x.reshape((mn * p,) + x.shape[2:])
-    R = np.abs(r) ** 2
-    vals = {"R": R, "T": T, "A": 1.0 - R - T, "phase_r": np.angle(r),
-            "phase_t": np.angle(1.0 / den)}
-    ders = {"R": flat(dR), "T": flat(dT), "A": flat(-dR - dT),
+
+    def flat(x):
+        return x.reshape((mn * p,) + x.shape[2:])
+
+    return {"R": flat(dR), "T": flat(dT), "A": flat(-dR - dT),
             "phase_r": flat(np.imag(dr / r)), "phase_t": flat(-np.imag(dD / den))}
-    return vals, ders
 
 
 def _expanded_provider(problem, design: Design, f, z, symbols):
