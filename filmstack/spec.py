@@ -122,10 +122,24 @@ class Requirement:
         lo, hi = self.band_nm
         band = f"{lo:g} nm" if lo == hi else f"{lo:g}–{hi:g} nm"
         angles = ", ".join(f"{a:g}" for a in self.angles_deg) + "°"
+        if self.quantity == "colour":
+            return f"colour {self.side}: {self._colour_condition()} at {angles}"
         cond = self.text or f"{self.op} {self.to_display(self.limit):g}{self.unit}"
         side = f", {self.side}" if self.quantity in PHASE_QUANTITIES + ("colour",) else ""
         return f"{self.quantity} {cond} over {band} ({self.over}) at {angles}, " \
                f"{self.polarization}{side}"
+
+
+    def _colour_condition(self) -> str:
+        """The colour box or target, with the illuminant and observer, for :meth:`describe`."""
+        o = self.options
+        if o.get("kind") == "target":
+            L, a, b = o["target"]
+            cond = f"ΔE2000 {self.op} {self.limit:g} from L*a*b* ({L:g}, {a:g}, {b:g})"
+        else:
+            box = [f"{c}* in [{o[c][0]:g}, {o[c][1]:g}]" for c in ("a", "b") if o.get(c)]
+            cond = " and ".join(box) if box else f"{self.op} {self.limit:g}"
+        return f"{cond} ({o.get('illuminant', 'D65')}, {o.get('observer', 2)}°)"
 
 
 @dataclass(frozen=True)
