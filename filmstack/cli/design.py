@@ -256,20 +256,36 @@ def _print_tables(result, rows, coarse, fine, spec_file: Path) -> None:
                              f"{stack.total_nm:.1f} nm on {sub} (layer 1 touches the substrate)",
                 caption=f"QWOT at {stack.reference_nm:g} nm. Merit {result.merit:.4g} "
                         f"({result.message}); {result.elapsed_s:.1f} s.")
-    rt = make_table("requirement", ("value", "right"), ("margin", "right"), "spec grid",
-                    ("value 4x", "right"), ("margin 4x", "right"), "4x grid")
-    for c, f in zip(coarse, fine):
+    rt = make_table(("#", "right"), "requirement", "at", ("value", "right"),
+                    ("margin", "right"), "", ("value 4x", "right"), ("margin 4x", "right"), "")
+    for i, (c, f) in enumerate(zip(coarse, fine)):
         req = c.requirement
-        rt.add_row(f"{req.key}: {req.describe()}", _display(req, c.value),
+        rt.add_row(str(i), _short(req), _where(req), _display(req, c.value),
                    _display(req, c.margin), "pass" if bool(np.asarray(c.passed)) else "FAIL",
                    _display(req, f.value), _display(req, f.margin),
                    "pass" if bool(np.asarray(f.passed)) else "FAIL")
     skipped = ", ".join(r.key for r, _ in result.skipped)
-    cap = ("Value: band mean at the worst angle (average) or the worst sample (every); margin > 0 "
-           "passes. 4x: re-evaluated on a grid four times finer.")
+    cap = ("Value: band mean at the worst angle (avg) or the worst sample (every); margin >= 0 "
+           "passes. 4x: re-evaluated on a grid four times finer than the spec's sampling.")
     if skipped:
         cap += f" Not optimised (checked only): {skipped}."
     print_table(rt, title="Requirements", caption=cap)
+
+
+def _short(req) -> str:
+    """``R <= 0.3% 420–680 nm avg`` (condition, band, average or every)."""
+    lo, hi = req.band_nm
+    band = f"{lo:g} nm" if lo == hi else f"{lo:g}–{hi:g} nm"
+    cond = req.text or f"{req.op} {float(req.to_display(req.limit)):g}{req.unit}"
+    return f"{req.quantity} {cond} {band} {'avg' if req.over == 'average' else 'every'}"
+
+
+def _where(req) -> str:
+    """``0, 45° mean`` (angles and polarisation; side for phase quantities)."""
+    angles = ", ".join(f"{a:g}" for a in req.angles_deg) + "°"
+    side = " transm." if req.side == "transmitted" and req.quantity != "colour" and \
+        req.quantity not in ("R", "T", "A") else ""
+    return f"{angles} {req.polarization}{side}"
 
 
 def register(app: typer.Typer) -> None:

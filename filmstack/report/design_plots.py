@@ -39,23 +39,50 @@ def design_wavelengths(requirements, *, pad: float = 0.1, points: int = 601,
 
 
 def _draw_target(ax, req, scale):
+    """Draw one requirement: ``every`` as a thick limit line with the forbidden side shaded,
+    ``average`` as a dash-dot line (the band mean must stay on its side, single points may
+    cross it), ``=`` as a band of ± the tolerance; each labelled at its right end."""
     lo, hi = float(req.band_nm[0]), float(req.band_nm[1])
     if lo == hi:
         lo, hi = lo - 1.0, hi + 1.0
     lim = req.limit * scale
     y0, y1 = ax.get_ylim()
+    unit = req.unit.strip()
+    text = f"{'mean ' if req.over == 'average' else ''}{req.op} {req.to_display(req.limit):g}" \
+           f"{' ' + unit if unit and unit != '%' else unit}"
     if req.op == "=":
         tol = req.tolerance * scale
-        ax.fill_between([lo, hi], lim - tol, lim + tol, color=_TARGET, alpha=0.12, lw=0,
+        ax.fill_between([lo, hi], lim - tol, lim + tol, color=_TARGET, alpha=0.10, lw=0,
                         zorder=1)
         ax.plot([lo, hi], [lim, lim], color=_TARGET, lw=1.0, ls=(0, (4, 2)), zorder=3)
-        return
-    if req.op == "<=":
-        ax.fill_between([lo, hi], lim, max(y1, lim), color=_FORBID, alpha=0.08, lw=0, zorder=1)
+        text += f" ± {req.to_display(req.tolerance):g}"
+    elif req.over == "average":
+        ax.plot([lo, hi], [lim, lim], color=_TARGET, lw=1.6, ls=(0, (6, 2, 1, 2)), zorder=3)
     else:
-        ax.fill_between([lo, hi], min(y0, lim), lim, color=_FORBID, alpha=0.08, lw=0, zorder=1)
-    ax.plot([lo, hi], [lim, lim], color=_TARGET, lw=2.2, solid_capstyle="butt", zorder=3)
+        if req.op == "<=":
+            ax.fill_between([lo, hi], lim, max(y1, lim), color=_FORBID, alpha=0.08, lw=0,
+                            zorder=1)
+        else:
+            ax.fill_between([lo, hi], min(y0, lim), lim, color=_FORBID, alpha=0.08, lw=0,
+                            zorder=1)
+        ax.plot([lo, hi], [lim, lim], color=_TARGET, lw=2.2, solid_capstyle="butt", zorder=3)
+    ax.annotate(text, (hi, lim), xytext=(3, 2), textcoords="offset points", fontsize=7.5,
+                color=_TARGET, ha="left", va="bottom", zorder=5, annotation_clip=False)
     ax.set_ylim(y0, y1)
+
+
+def _draw_band_means(ax, wl, curves_by_angle, reqs, scale):
+    """Short dotted lines at the achieved band mean of every ``average`` requirement."""
+    for r in reqs:
+        if r.over != "average" or r.band_nm[0] == r.band_nm[1]:
+            continue
+        lo, hi = r.band_nm
+        inside = (wl >= lo) & (wl <= hi)
+        for key, (vals, colour) in curves_by_angle.items():
+            if key[0] not in [float(a) for a in r.angles_deg] or key[1] != r.polarization:
+                continue
+            mean = np.trapezoid(vals[inside], wl[inside]) / (wl[inside][-1] - wl[inside][0])
+            ax.plot([lo, hi], [mean, mean], color=colour, lw=1.0, ls=(0, (1, 1.5)), zorder=3)
 
 
 def plot_design_spectra(stack, requirements, *, wavelengths_nm=None, title=None, subtitle=None,
@@ -102,6 +129,7 @@ def plot_design_spectra(stack, requirements, *, wavelengths_nm=None, title=None,
                         curves.append(key)
             angles_all = sorted({c[0] for c in curves})
             allv = []
+            drawn = {}
             for a, pol, side in curves:
                 colour = PALETTE[angles_all.index(a) % len(PALETTE)]
                 if q in ("R", "T", "A"):
@@ -115,9 +143,14 @@ def plot_design_spectra(stack, requirements, *, wavelengths_nm=None, title=None,
                 ax.plot(wl, vals, color=colour, linestyle=LINESTYLES.get(pol, "-"), lw=1.5,
                         label=label, zorder=4)
                 allv.append(vals)
+                drawn[(a, pol)] = (vals, colour)
             ax.set_ylim(*_panel_limits(q, wl, allv, qreqs))
             for r in qreqs:
                 _draw_target(ax, r, _QSCALE[q])
+            if q in ("R", "T", "A") and any(r.over == "average" for r in qreqs):
+                _draw_band_means(ax, wl, drawn, qreqs, _QSCALE[q])
+                ax.plot([], [], color="#6b6b6b", lw=1.0, ls=(0, (1, 1.5)),
+                        label="achieved band mean")
             ax.set_ylabel(_QLABEL[q])
             ax.set_xlim(wl[0], wl[-1])
             ax.legend(loc="best", title="angle  polarisation", title_fontsize=8,
@@ -194,13 +227,25 @@ def plot_reflectance_map(stack, wavelengths_nm, angles_deg, polarization: str = 
     wl = np.asarray(wavelengths_nm, float)
     ang = np.asarray(angles_deg, float)
     vals = 100.0 * np.asarray(getattr(spectrum(stack, wl, ang, polarization), quantity))
+    vmax = max(float(np.nanmax(vals)), 1e-3)
+    # an upper limit on this quantity: scale the colours to what matters near the targets
+    uppers = [r for r in requirements if r.quantity == quantity and r.op == "<="]
+    if uppers:
+        inside = np.zeros(vals.shape, bool)
+        for r in uppers:
+            lo, hi = r.band_nm
+            inside |= ((wl >= lo) & (wl <= hi))[None, :] & \
+                (ang <= max(r.angles_deg) + 1e-9)[:, None]
+        near = max(3.0 * 100.0 * max(r.limit for r in uppers),
+                   1.5 * float(np.max(vals[inside])) if inside.any() else 0.0)
+        vmax = min(vmax, max(near, 1e-3))
+    extend = "max" if vmax < float(np.nanmax(vals)) else "neither"
     with rc_context(_STYLE):
         fig = Figure(figsize=(WIDTH_IN, 4.6), dpi=DPI, layout="constrained")
         ax = fig.subplots()
         ax.grid(False)
-        im = ax.pcolormesh(wl, ang, vals, shading="nearest", cmap="magma",
-                           vmin=0.0, vmax=max(float(np.nanmax(vals)), 1e-3))
-        cb = fig.colorbar(im, ax=ax, pad=0.01)
+        im = ax.pcolormesh(wl, ang, vals, shading="nearest", cmap="magma", vmin=0.0, vmax=vmax)
+        cb = fig.colorbar(im, ax=ax, pad=0.01, extend=extend)
         cb.set_label(f"{'Reflectance R' if quantity == 'R' else 'Transmittance T'} (%), "
                      f"{polarization}")
         for r in requirements:
@@ -298,8 +343,14 @@ def plot_merit_history(history, *, title=None):
         ax.plot(t, pos, "o", color=PALETTE[0], ms=3)
         if np.any(np.isfinite(pos)):
             ax.set_yscale("log")
+        zero = np.flatnonzero(m <= 0)
+        if zero.size and np.any(np.isfinite(pos)):
+            y = np.nanmin(pos)
+            ax.plot(t[zero[0]], y, "v", color=PALETTE[2], ms=8)
+            ax.annotate("merit 0: every target met", (t[zero[0]], y), xytext=(-6, 8),
+                        textcoords="offset points", ha="right", fontsize=8, color=PALETTE[2])
         ax.set_xlabel("Elapsed time (s)")
-        ax.set_ylabel("Merit (squared % points)")
+        ax.set_ylabel("Merit (R, T, A deviations in % points, squared)")
         ax2 = ax.twinx()
         ax2.step(t, n, where="post", color=PALETTE[1], lw=1.0, ls=(0, (4, 2)))
         ax2.set_ylabel("Layers", color=PALETTE[1])
