@@ -93,6 +93,18 @@ class TestColumnsAndUnits:
         with pytest.raises(InputError, match="angle"):
             one("# angle_deg: 12\nwavelength_nm,R\n400,0.3\n", angle_deg=8)
 
+    def test_blank_lines_and_comments_between_rows_keep_line_numbers(self):
+        m = one("wavelength_nm,R\n400,0.1\n   \n# a note\n410,0.2\n\n")
+        np.testing.assert_array_equal(m.channels[0].line, [2, 5])
+        with pytest.raises(InputError, match="'x' is not a number") as e:
+            one("wavelength_nm,R\n400,0.1\n\n# a note\n410,x\n")
+        assert e.value.line == 5
+
+    def test_quoted_cells(self):
+        m = one('site,wavelength_nm,R\n"A, centre",400,0.1\n"A, centre",410,0.2\n')
+        assert m.site == "A, centre"
+        np.testing.assert_allclose(m.channels[0].value, [0.1, 0.2])
+
     def test_values_just_outside_0_1_are_accepted_as_noise(self):
         m = one(f"wavelength_nm,R\n400,{1 + NOISE_ALLOWANCE / 2}\n410,-0.005\n")
         np.testing.assert_allclose(m.channels[0].value, [1 + NOISE_ALLOWANCE / 2, -0.005])
