@@ -123,7 +123,7 @@ def _map_table(result, model_path: Path, measured_path: Path):
         se = result.stderr[:, j]
         se = se[np.isfinite(se)]
         table.add_row(name, _num(u.mean), _num(u.minimum), _num(u.maximum), _num(u.range, 4),
-                      _num(u.sigma, 4), _num(100 * u.nonuniformity, 3),
+                      _num(u.sigma, 4), f"{100 * u.nonuniformity:.2f}",
                       _num(float(np.median(se)), 3) if se.size else "-", result.units[j])
     return table
 

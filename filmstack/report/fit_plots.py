@@ -187,8 +187,10 @@ def plot_map(result, name: str | None = None, *, title: str | None = None,
             except (ValueError, RuntimeError):   # collinear sites: points only
                 mappable = None
         if mappable is not None:      # the contours carry the values; sites as small dots
-            sc = ax.scatter(x[ok], y[ok], s=4, c="#2b2b2b", linewidths=0, zorder=3,
-                            label="sites")
+            n = int(ok.sum())                 # smaller dots as sites get denser
+            sc = ax.scatter(x[ok], y[ok], s=float(np.clip(4.0 * 300.0 / n, 0.3, 4.0)),
+                            c="#2b2b2b", alpha=1.0 if n <= 1000 else 0.5, linewidths=0,
+                            zorder=3, label="sites")
         else:
             sc = ax.scatter(x[ok], y[ok], c=v[ok], cmap=cmap, vmin=vmin, vmax=vmax, s=40,
                             edgecolors="#2b2b2b", linewidths=0.4, zorder=3)
@@ -216,7 +218,7 @@ def plot_map(result, name: str | None = None, *, title: str | None = None,
         uu = f" {unit}" if unit else ""
         summary = (f"{u.n_sites} sites: mean {u.mean:.5g}{uu}, range {u.range:.4g}{uu} "
                    f"({u.minimum:.5g} to {u.maximum:.5g}), σ {u.sigma:.4g}{uu}\n"
-                   f"non-uniformity (max − min)/(2·mean) = {100 * u.nonuniformity:.3g} %")
+                   f"non-uniformity (max − min)/(2·mean) = {100 * u.nonuniformity:.2f} %")
         fig.suptitle(title or f"Map of {name}", x=0.02, ha="left", fontsize=11,
                      fontweight="bold")
         ax.set_title(summary, loc="left", fontsize=8.5, color="#4a4a4a", fontweight="normal")
