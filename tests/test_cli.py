@@ -120,6 +120,11 @@ def _demo_app():
         raise InputError("first\nsecond")
 
     @demo.command()
+    def caret():
+        """Raise an InputError with a caret display under the input."""
+        raise InputError("unknown symbol 'X' at column 8: \"(HL)^7 X\"\n  (HL)^7 X\n         ^")
+
+    @demo.command()
     def crash():
         """Raise an unexpected error."""
         raise ZeroDivisionError("division by zero in the demo")
@@ -156,6 +161,11 @@ class TestExitCodes:
         result = runner.invoke(self.demo, ["multiline"])
         assert result.exit_code == 2
         assert result.stderr == "filmstack: error: first second\n"
+
+    def test_caret_display_is_dropped_from_the_one_line(self):
+        result = runner.invoke(self.demo, ["caret"])
+        assert result.exit_code == 2
+        assert result.stderr == "filmstack: error: unknown symbol 'X' at column 8: \"(HL)^7 X\"\n"
 
     def test_internal_error_is_exit_3_without_traceback(self):
         result = runner.invoke(self.demo, ["crash"])

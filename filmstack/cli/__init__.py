@@ -45,7 +45,17 @@ _PROG = "filmstack"
 
 
 def _one_line(text: str) -> str:
-    return " ".join(str(text).split())
+    """The message on one line. A caret display (a line echoing the input, then a line of
+    ``^``) is dropped: the message names the column already."""
+    lines = str(text).splitlines()
+    keep: list[str] = []
+    for ln in lines:
+        if ln.strip() and set(ln.strip()) <= set("^~"):
+            if keep:
+                keep.pop()          # the echoed input above the caret
+            continue
+        keep.append(ln)
+    return " ".join(" ".join(keep).split())
 
 
 def _error_line(message: str) -> None:
