@@ -142,3 +142,17 @@ class TestStartDesign:
 
         d = start_design(DesignProblem.from_spec(ar_spec()))
         assert d.symbols == ("L",) and d.d[0] == pytest.approx(0.75 * 400)
+
+
+class TestThickSubstrate:
+    def test_designs_on_a_thick_substrate_with_its_back_face(self):
+        # a 1 mm plate: the back face reflects ~4 % (incoherent sum), so aim at the front only
+        spec = Spec(template=Stack(AIR, GLASS, substrate_mm=1.0, reference_nm=550),
+                    materials={"H": H, "L": L},
+                    requirements=(Requirement("R", "<=", 0.048, (450, 650), step_nm=10,
+                                              over="average"),),
+                    limits=Limits(total_nm=300, layers=6, thinnest_nm=5))
+        res = synthesize(spec, seed=1, time_limit_s=30)
+        assert limits_kept(res, spec.limits)
+        assert res.success, res.message
+        assert res.stack.substrate_mm == 1.0

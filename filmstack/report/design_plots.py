@@ -48,8 +48,8 @@ def _draw_target(ax, req, scale):
     lim = req.limit * scale
     y0, y1 = ax.get_ylim()
     unit = req.unit.strip()
-    text = f"{'mean ' if req.over == 'average' else ''}{req.op} {req.to_display(req.limit):g}" \
-           f"{' ' + unit if unit and unit != '%' else unit}"
+    unit = unit if unit == "%" else (" " + unit if unit else "")
+    text = f"{'mean ' if req.over == 'average' else ''}{req.op} {req.to_display(req.limit):g}"
     if req.op == "=":
         tol = req.tolerance * scale
         ax.fill_between([lo, hi], lim - tol, lim + tol, color=_TARGET, alpha=0.10, lw=0,
@@ -66,6 +66,7 @@ def _draw_target(ax, req, scale):
             ax.fill_between([lo, hi], min(y0, lim), lim, color=_FORBID, alpha=0.08, lw=0,
                             zorder=1)
         ax.plot([lo, hi], [lim, lim], color=_TARGET, lw=2.2, solid_capstyle="butt", zorder=3)
+    text += unit
     ax.annotate(text, (hi, lim), xytext=(3, 2), textcoords="offset points", fontsize=7.5,
                 color=_TARGET, ha="left", va="bottom", zorder=5, annotation_clip=False)
     ax.set_ylim(y0, y1)
@@ -210,7 +211,7 @@ def plot_reflectance_map(stack, wavelengths_nm, angles_deg, polarization: str = 
     polarization
         's', 'p' or 'mean'.
     requirements
-        Requirements on the same quantity are outlined (band × angle span).
+        Requirements on R, T or A are outlined (band × angle span) and labelled.
     quantity
         'R' or 'T'.
 
@@ -220,6 +221,7 @@ def plot_reflectance_map(stack, wavelengths_nm, angles_deg, polarization: str = 
     """
     from matplotlib import rc_context
     from matplotlib.figure import Figure
+    from matplotlib import patheffects
     from matplotlib.patches import Rectangle
 
     from ..response import spectrum
@@ -249,12 +251,17 @@ def plot_reflectance_map(stack, wavelengths_nm, angles_deg, polarization: str = 
         cb.set_label(f"{'Reflectance R' if quantity == 'R' else 'Transmittance T'} (%), "
                      f"{polarization}")
         for r in requirements:
-            if r.quantity != quantity:
+            if r.quantity not in ("R", "T", "A"):
                 continue
             a0, a1 = min(r.angles_deg), max(r.angles_deg)
             lo, hi = r.band_nm
-            ax.add_patch(Rectangle((lo, a0 - 0.5), max(hi - lo, 1.0), (a1 - a0) + 1.0,
+            ax.add_patch(Rectangle((lo, a0 - 1.0), max(hi - lo, 1.0), (a1 - a0) + 2.0,
                                    fill=False, ec="#7fd1ff", lw=1.4, ls=(0, (4, 2))))
+            cond = r.text or f"{r.op} {float(r.to_display(r.limit)):g}%"
+            ax.annotate(f"{r.quantity} {cond}", (lo, a1 + 1.0), xytext=(2, 2),
+                        textcoords="offset points", fontsize=7.5, color="#7fd1ff",
+                        ha="left", va="bottom",
+                        path_effects=[patheffects.withStroke(linewidth=2, foreground="#1a1a1a")])
         ax.set_xlabel("Wavelength (nm, vacuum)")
         ax.set_ylabel("Angle of incidence (deg)")
         if title:
