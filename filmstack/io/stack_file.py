@@ -61,7 +61,10 @@ __all__ = ["load_stack", "stack_from_mapping", "save_stack", "stack_to_mapping",
 
 #: Top-level keys of a stack file.
 STACK_KEYS = ("incident", "substrate", "exit", "reference_nm", "materials_dir", "layers",
-              "design", "symbols", "back_layers", "back_design")
+              "design", "symbols", "back_layers", "back_design", "fit")
+# 'fit' holds free index parameters (index scales, Cauchy coefficients) for `filmstack fit`,
+# which reads and validates it (filmstack.fit.parameters.parse_fit_block); here it is allowed
+# so that the same model file runs with `spectrum`, `colour` and `check` at its start values.
 _LAYER_KEYS = ("material", "nm", "qwot")
 # keys that make a mapping an inline material (see filmstack.materials.material_from_spec)
 _INLINE_MARKERS = ("n", "k", "model", "cauchy", "sellmeier")
