@@ -10,7 +10,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from filmstack.design import Design, Merit, synthesize
+from filmstack.design import Merit, synthesize
 from filmstack.design.synthesis import start_design
 from filmstack.errors import InputError
 from filmstack.materials import Constant

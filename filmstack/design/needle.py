@@ -389,7 +389,7 @@ def _fits(problem, design: Design) -> bool:
     return lim is None or len(design) <= lim
 
 
-def _needle_thickness(merit, design, scan, m, p, value, current):
+def _needle_thickness(merit, design, scan, m, p):
     """First thickness of a needle: best of a few trial thicknesses (nm) by merit value."""
     sym = scan.materials[m]
     cap = merit.problem.free_total_nm
@@ -460,7 +460,7 @@ def needle_optimise(merit, design: Design, value: float, *, refine, clock, accep
             if not _fits(problem, trial):
                 continue
             n_tried += 1
-            trial = _needle_thickness(merit, design, scan, m, p, val, value)
+            trial = _needle_thickness(merit, design, scan, m, p)
             trial, tval = refine(trial)
             if tval < value * (1.0 - 1e-6) and not problem.violations(trial):
                 small = small + 1 if tval > value * (1.0 - min_gain) else 0
