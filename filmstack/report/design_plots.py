@@ -298,12 +298,13 @@ def plot_index_profile(stack, wavelength_nm: float | None = None, *, title=None,
     with rc_context(_STYLE):
         fig = Figure(figsize=(WIDTH_IN, 3.6), dpi=DPI, layout="constrained")
         ax = fig.subplots()
+        base = min(1.0, n_inc) * 0.9
         ax.fill_between([-side, 0], 0, n_sub, color="#b9b4aa", step="post", lw=0)
-        ax.text(-side / 2, n_sub, f"{stack.substrate.name}\n", ha="center", va="bottom",
-                fontsize=7.5, color="#4a4a4a")
+        ax.text(-side / 2, base + 0.03, stack.substrate.name, ha="center", va="bottom",
+                rotation=90, fontsize=7.5, color="#2b2b2b", clip_on=True)
         ax.fill_between([total, total + side], 0, n_inc, color="#e6e3dc", lw=0)
-        ax.text(total + side / 2, n_inc, f"{stack.incident.name}\n", ha="center", va="bottom",
-                fontsize=7.5, color="#4a4a4a")
+        ax.text(total + side / 2, n_inc + 0.03, stack.incident.name, ha="center",
+                va="bottom", rotation=90, fontsize=7.5, color="#4a4a4a", clip_on=True)
         for j, layer in enumerate(stack.layers):
             x0, x1 = edges[j], edges[j + 1]
             hatch = "///" if fixed is not None and fixed[j] else None
@@ -314,10 +315,13 @@ def plot_index_profile(stack, wavelength_nm: float | None = None, *, title=None,
         ax.step(x, y, where="post", color="#2b2b2b", lw=0.9)
         handles = [ax.fill_between([], [], [], color=colours[nm], alpha=0.85, label=nm)
                    for nm in names]
+        if fixed is not None and any(fixed):
+            handles.append(ax.fill_between([], [], [], color="#9a9a9a", hatch="///",
+                                           edgecolor="white", label="fixed layer"))
         if handles:
             ax.legend(handles=handles, loc="upper right", ncols=min(4, len(handles)))
         top = max(np.r_[n_layers, n_sub, n_inc]) if d.size else max(n_sub, n_inc)
-        ax.set_ylim(min(1.0, n_inc) * 0.9, top * 1.18)
+        ax.set_ylim(base, top * 1.18)
         ax.set_xlim(-side, total + side)
         ax.set_xlabel("Height above the substrate (nm); light arrives from the right")
         ax.set_ylabel(f"Refractive index n at {wl:g} nm")
