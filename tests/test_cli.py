@@ -227,6 +227,17 @@ class TestProcess:
         assert "missing.yaml" in proc.stderr and "not found" in proc.stderr
         assert "Traceback" not in proc.stderr
 
+    def test_stdout_closed_by_reader_is_quiet_exit_141(self):
+        # `filmstack spectrum … | head`: no traceback, no "exit 1" (our code for a failed check)
+        env = dict(os.environ, PYTHONPATH=str(ROOT))
+        proc = subprocess.Popen([sys.executable, "-m", "filmstack", "spectrum",
+                                 "examples/lens-ar.yaml", "--step", "5"], cwd=ROOT, env=env,
+                                stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+        proc.stdout.close()                      # the reader is gone before anything is written
+        err = proc.stderr.read().decode()
+        assert proc.wait(timeout=120) == 141
+        assert "Traceback" not in err and "error" not in err
+
     def test_python_m_filmstack_version(self):
         proc = self._run("--version")
         assert proc.returncode == 0

@@ -11,7 +11,7 @@ Errors become exit codes here, in one place (DESIGN.md §5):
   printed as one line on stderr, never with a traceback;
 - 3 any other exception: a short message, the traceback only with ``--debug``
   (or ``FILMSTACK_DEBUG=1``);
-- 130 interrupted with Ctrl-C.
+- 130 interrupted with Ctrl-C; 141 stdout closed by its reader (``filmstack … | head``).
 
 The same handling runs under ``filmstack``, ``python -m filmstack`` and typer's ``CliRunner``
 (it lives in the click group's ``main``).
@@ -35,7 +35,8 @@ except ImportError:  # pragma: no cover - older typer on top of click
     from click import exceptions as _cx
 
 from ..errors import InputError
-from ._common import (EXIT_INPUT, EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, STATE)
+from ._common import (EXIT_INPUT, EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, EXIT_PIPE_CLOSED,
+                      STATE)
 
 __all__ = ["app", "main"]
 
@@ -91,6 +92,10 @@ class _Interrupted(Exception):
     """Ctrl-C inside a command (typer would turn a KeyboardInterrupt into a silent exit 130)."""
 
 
+class _PipeClosed(Exception):
+    """stdout was closed by the reader (``filmstack … | head``); typer would exit 1 for it."""
+
+
 class _FilmstackGroup(TyperGroup):
     """The root group: maps exceptions to exit codes and one-line messages."""
 
@@ -99,6 +104,8 @@ class _FilmstackGroup(TyperGroup):
             return super().invoke(ctx)
         except KeyboardInterrupt:
             raise _Interrupted() from None
+        except BrokenPipeError:
+            raise _PipeClosed() from None
 
     def main(self, args=None, prog_name=None, complete_var=None, standalone_mode=True,
              **extra):
@@ -140,13 +147,15 @@ class _FilmstackGroup(TyperGroup):
             return EXIT_INTERRUPTED
         except typer.Exit as exc:
             return exc.exit_code
-        except BrokenPipeError:
-            # stdout closed early (e.g. piped into `head`): not an error of ours
+        except (_PipeClosed, BrokenPipeError):
+            # the reader closed stdout early (e.g. `| head`): stop quietly, as a tool killed by
+            # SIGPIPE would (128 + 13), and keep Python from complaining at exit
             try:
-                sys.stdout = open(os.devnull, "w")
-            except OSError:
+                devnull = os.open(os.devnull, os.O_WRONLY)
+                os.dup2(devnull, sys.stdout.fileno())
+            except (OSError, ValueError, AttributeError):
                 pass
-            return EXIT_OK
+            return EXIT_PIPE_CLOSED
         except Exception as exc:  # noqa: BLE001 - the last line of defence
             if STATE.debug:
                 traceback.print_exc()

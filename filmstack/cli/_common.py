@@ -42,6 +42,7 @@ from ..io.json_out import dumps_json, to_jsonable
 
 __all__ = [
     "EXIT_OK", "EXIT_FAILED", "EXIT_INPUT", "EXIT_INTERNAL", "EXIT_INTERRUPTED",
+    "EXIT_PIPE_CLOSED",
     "CAUTION_MODEL", "CAUTION_LASER", "CAUTION_COLOUR", "CAUTIONS",
     "FromNm", "ToNm", "StepNm", "AngleDeg", "Pol", "JsonFlag", "MaterialsDir",
     "POLARIZATIONS", "STATE",
@@ -58,6 +59,7 @@ EXIT_FAILED = 1        # a check or requirement that did not pass
 EXIT_INPUT = 2         # bad input or usage: one line on stderr, no traceback
 EXIT_INTERNAL = 3      # a bug or an unexpected condition: short message, traceback with --debug
 EXIT_INTERRUPTED = 130  # Ctrl-C (128 + SIGINT), as shells report it
+EXIT_PIPE_CLOSED = 141  # stdout closed by its reader (128 + SIGPIPE), as `yes | head` reports it
 
 # --- cautions (DESIGN.md §7) ----------------------------------------------------------------
 CAUTION_MODEL = (
@@ -277,13 +279,24 @@ def print_json(obj: Any) -> None:
 
 
 # --- tables and messages -------------------------------------------------------------------
-def stdout_console():
-    """A rich Console on the current stdout (at least 100 columns wide when not a terminal)."""
+def _console_class():
     from rich.console import Console
 
-    console = Console(file=sys.stdout, highlight=False, soft_wrap=False)
+    class _Console(Console):
+        def on_broken_pipe(self) -> None:
+            # rich would exit 1 here (our code for a failed requirement): let the CLI decide
+            self.quiet = True
+            raise BrokenPipeError
+
+    return _Console
+
+
+def stdout_console():
+    """A rich Console on the current stdout (100 columns wide when not a terminal)."""
+    console_cls = _console_class()
+    console = console_cls(file=sys.stdout, highlight=False, soft_wrap=False)
     if not console.is_terminal and "COLUMNS" not in os.environ:
-        console = Console(file=sys.stdout, highlight=False, width=100)
+        console = console_cls(file=sys.stdout, highlight=False, width=100)
     return console
 
 
