@@ -106,6 +106,12 @@ class FieldProfile:
 # ------------------------------------------------------------------------------------------------
 
 
+def _absorptance(R, T):
+    """A = 1 − R − T, with rounding noise (|A| < 1e-14, e.g. −6e-17 for a lossless stack) set to 0."""
+    A = 1.0 - R - T
+    return np.where(np.abs(A) < 1e-14, 0.0, A)
+
+
 def _grid(wavelengths_nm, angles_deg):
     """Check the user's grid, naming the arguments as this module's functions spell them."""
     wl = np.atleast_1d(np.asarray(wavelengths_nm, dtype=float))
@@ -210,11 +216,12 @@ def spectrum(stack: Stack, wavelengths_nm, angles_deg=0.0, polarization: str = "
     N, d, n0, n_sub = _inputs(stack, wl, thicknesses_nm, layer_indices, extrapolate)
     if stack.substrate_mm is None:
         res = coherent_response(N, d, n0, n_sub, wl, ang, polarization)
-        return Spectrum(wl, ang, polarization, res.R, res.T, res.A, res.r, res.t)
+        return Spectrum(wl, ang, polarization, res.R, res.T, _absorptance(res.R, res.T), res.r,
+                        res.t)
     parts = [_thick_parts(stack, wl, ang, p, N, d, n0, n_sub, extrapolate) for p in pols]
     R = sum(p[0] for p in parts) / len(parts)
     T = sum(p[1] for p in parts) / len(parts)
-    return Spectrum(wl, ang, polarization, R, T, 1.0 - R - T)
+    return Spectrum(wl, ang, polarization, R, T, _absorptance(R, T))
 
 
 def spectrum_derivatives(stack: Stack, wavelengths_nm, angles_deg=0.0,

@@ -37,7 +37,7 @@ seen (adapted to D65); '!' marks a colour outside the sRGB gamut (the hex is cli
 
 Example:
 
-    filmstack colour examples/colour-lens-ar.yaml --illuminant D65 --observer 10 --angle 0 --angle 30 --angle 45
+    filmstack colour examples/lens-ar.yaml --illuminant D65 --observer 10 --angle 0 --angle 30 --angle 45
 """
 
 CHART_HELP = """\

@@ -18,8 +18,8 @@ from typing import Annotated
 import numpy as np
 import typer
 
-from ._common import (FromNm, JsonFlag, StepNm, ToNm, check_output, make_table, print_json,
-                      print_table, stdout_console, wavelength_grid)
+from ._common import (FromNm, JsonFlag, MaterialsDir, StepNm, ToNm, check_output, make_table,
+                      material_folders, print_json, print_table, stdout_console, wavelength_grid)
 from ..errors import ExtrapolationWarning, InputError, OutOfRangeError
 
 __all__ = ["register", "materials_app"]
@@ -28,10 +28,6 @@ materials_app = typer.Typer(
     name="materials", no_args_is_help=True, add_completion=False,
     help="The materials library: list it, show n and k of one material with its source, plot.")
 
-MaterialsDir = Annotated[list[Path] | None, typer.Option(
-    "--materials-dir", "-m", metavar="DIR",
-    help="Folder of your own material files (.yaml); repeat for several (later ones first). "
-         "They are searched before the bundled library.", show_default=False)]
 Extrapolate = Annotated[bool, typer.Option(
     "--extrapolate", help="Evaluate outside the material's valid range (warned; at your own "
                           "risk).")]
@@ -40,20 +36,10 @@ NameArg = Annotated[str, typer.Argument(
                          "catalog:shelf/book/page.", show_default=False)]
 
 
-def _folders(dirs) -> tuple[Path, ...]:
-    out = []
-    for d in dirs or ():
-        p = Path(d).expanduser()
-        if not p.is_dir():
-            raise InputError(f"--materials-dir: folder not found: {p}")
-        out.append(p)
-    return tuple(out)
-
-
 def _load(name: str, dirs):
     from ..materials import get_material
 
-    return get_material(name, _folders(dirs))
+    return get_material(name, material_folders(dirs))
 
 
 def _fmt_range(r) -> str:
@@ -86,7 +72,7 @@ Examples:
 def list_command(materials_dir: MaterialsDir = None, json_out: JsonFlag = False) -> None:
     from ..materials import get_material, list_materials
 
-    folders = _folders(materials_dir)
+    folders = material_folders(materials_dir)
     rows = []
     for name in list_materials(folders):
         m = get_material(name, folders)

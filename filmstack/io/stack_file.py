@@ -319,6 +319,10 @@ class _Reader:
                              "")
         top = self.mapping(data, "", "a stack: a mapping with keys such as incident, "
                                      "substrate, reference_nm and layers")
+        if "requirements" in top and "stack" in top:
+            raise self.error("this is a spec file (it has 'stack' and 'requirements'), not a "
+                             "stack file: give it to 'filmstack design SPEC' or "
+                             "'filmstack check STACK --spec SPEC'", "")
         self.keys(top, STACK_KEYS, "")
         if "substrate" not in top:
             raise self.error("missing required key 'substrate' (e.g. substrate: fused-silica, "
