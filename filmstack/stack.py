@@ -128,6 +128,12 @@ class Stack:
         return _indices(self.back_layers, wl, extrapolate)
 
     @property
+    def range_nm(self) -> tuple[float, float]:
+        """(lo, hi) nm: the wavelengths where every material of the stack has data."""
+        return (max(m.range_nm[0] for m in self.materials),
+                min(m.range_nm[1] for m in self.materials))
+
+    @property
     def materials(self) -> tuple[Material, ...]:
         """Every distinct material of the stack (media and layers), first appearance first."""
         seen: dict[int, Material] = {}

@@ -100,9 +100,7 @@ def _write_report(report_dir: Path, result, spec, spec_path: Path) -> list[Path]
 
     stack = result.stack
     reqs = [r for r in spec.requirements if r.quantity != "colour"]
-    lo = max(m.range_nm[0] for m in stack.materials)
-    hi = min(m.range_nm[1] for m in stack.materials)
-    wl = design_wavelengths(reqs, material_range=(lo, hi)) if reqs else None
+    wl = design_wavelengths(reqs, material_range=stack.range_nm) if reqs else None
     caption = ("filmstack: ideal homogeneous films with the given optical constants; verify "
                "with measurement.")
     out = []

@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .spectrum_plot import DPI, LINESTYLES, PALETTE, WIDTH_IN, _STYLE
+from .spectrum_plot import DPI, LINESTYLES, PALETTE, WIDTH_IN, _STYLE, band_wavelengths
 
 __all__ = ["plot_check_spectra", "plot_yield", "plot_sensitivity", "check_wavelengths",
            "ENVELOPE_TRIALS"]
@@ -32,23 +32,10 @@ _PASS = "#2e8b57"
 _FAIL = "#d1495b"
 
 
-def check_wavelengths(requirements, *, pad: float = 0.08, points: int = 801,
-                      material_range=None) -> np.ndarray:
-    """A plotting grid (nm) over every requirement's band, ``pad`` of the span added each side,
-    clipped to ``material_range`` (lo, hi)."""
-    lo = min(float(r.band_nm[0]) for r in requirements)
-    hi = max(float(r.band_nm[1]) for r in requirements)
-    span = max(hi - lo, 0.1 * hi)
-    lo, hi = lo - pad * span, hi + pad * span
-    if material_range is not None:
-        lo, hi = max(lo, material_range[0]), min(hi, material_range[1])
-    return np.linspace(max(lo, 1.0), hi, points)
-
-
-def _material_range(stack):
-    lo = max(m.range_nm[0] for m in stack.materials)
-    hi = min(m.range_nm[1] for m in stack.materials)
-    return lo, hi
+def check_wavelengths(requirements, *, material_range=None) -> np.ndarray:
+    """The check report's plotting grid (nm): every band with 8 % of the span each side."""
+    return band_wavelengths(requirements, pad=0.08, points=801, material_range=material_range,
+                            min_span_fraction=0.1)
 
 
 def _draw_limit(ax, req, scale, number, failed=False):
@@ -140,7 +127,7 @@ def plot_check_spectra(stack, requirements, *, check=None, mc=None, wavelengths_
     failed = set()
     if check is not None:
         failed = {r.requirement.key for r in check.requirements if not bool(r.passed)}
-    wl = (check_wavelengths(reqs, material_range=_material_range(stack))
+    wl = (check_wavelengths(reqs, material_range=stack.range_nm)
           if wavelengths_nm is None else np.asarray(wavelengths_nm, dtype=float))
     order = [q for q in ("R", "T", "A", "phase", "GD", "GDD") if any(r.quantity == q
                                                                     for r in reqs)]

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .spectrum_plot import DPI, LINESTYLES, PALETTE, WIDTH_IN, _STYLE
+from .spectrum_plot import DPI, LINESTYLES, PALETTE, WIDTH_IN, _STYLE, band_wavelengths
 
 __all__ = ["plot_design_spectra", "plot_reflectance_map", "plot_index_profile",
            "plot_merit_history", "design_wavelengths"]
@@ -25,17 +25,9 @@ _TARGET = "#3b3b3b"
 _FORBID = "#d1495b"
 
 
-def design_wavelengths(requirements, *, pad: float = 0.1, points: int = 601,
-                       material_range=None) -> np.ndarray:
-    """A plotting grid (nm) covering every requirement's band with ``pad`` of the span on each
-    side, clipped to ``material_range`` (lo, hi) where the materials have data."""
-    lo = min(float(r.band_nm[0]) for r in requirements)
-    hi = max(float(r.band_nm[1]) for r in requirements)
-    span = max(hi - lo, 0.05 * hi)
-    lo, hi = lo - pad * span, hi + pad * span
-    if material_range is not None:
-        lo, hi = max(lo, material_range[0]), min(hi, material_range[1])
-    return np.linspace(lo, hi, points)
+def design_wavelengths(requirements, *, material_range=None) -> np.ndarray:
+    """The design report's plotting grid (nm): every band with 10 % of the span each side."""
+    return band_wavelengths(requirements, material_range=material_range)
 
 
 def _draw_target(ax, req, scale):

@@ -12,33 +12,10 @@ import math
 
 import numpy as np
 
-from .spectrum_plot import DPI, PALETTE, WIDTH_IN
+from .spectrum_plot import DPI, PALETTE, WIDTH_IN, _STYLE
 
 __all__ = ["plot_fit", "plot_map"]
 
-_STYLE = {
-    "font.size": 9.5,
-    "axes.titlesize": 11,
-    "axes.titleweight": "bold",
-    "axes.titlelocation": "left",
-    "axes.labelsize": 9.5,
-    "axes.labelcolor": "#2b2b2b",
-    "axes.edgecolor": "#6b6b6b",
-    "axes.linewidth": 0.8,
-    "axes.spines.top": False,
-    "axes.spines.right": False,
-    "axes.grid": True,
-    "grid.color": "#e3e1dc",
-    "grid.linewidth": 0.7,
-    "xtick.color": "#4a4a4a",
-    "ytick.color": "#4a4a4a",
-    "legend.frameon": True,
-    "legend.framealpha": 0.9,
-    "legend.edgecolor": "#d9d6cf",
-    "legend.fontsize": 8.5,
-    "svg.hashsalt": "filmstack",
-    "svg.fonttype": "path",
-}
 
 _CAPTION = ("filmstack: ideal homogeneous films with the given optical constants; "
             "verify with measurement.")

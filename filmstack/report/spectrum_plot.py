@@ -176,3 +176,17 @@ def figure_bytes(fig, fmt: str) -> bytes:
     with rc_context(_STYLE):
         fig.savefig(buf, format=fmt, dpi=fig.dpi, metadata=meta, facecolor="white")
     return buf.getvalue()
+
+
+def band_wavelengths(requirements, *, pad: float = 0.1, points: int = 601,
+                     material_range=None, min_span_fraction: float = 0.05) -> np.ndarray:
+    """A plotting grid (nm) covering every requirement's band with ``pad`` of the span on each
+    side (the span at least ``min_span_fraction`` of the longest wavelength), clipped to
+    ``material_range`` (lo, hi) where the materials have data."""
+    lo = min(float(r.band_nm[0]) for r in requirements)
+    hi = max(float(r.band_nm[1]) for r in requirements)
+    span = max(hi - lo, min_span_fraction * hi)
+    lo, hi = lo - pad * span, hi + pad * span
+    if material_range is not None:
+        lo, hi = max(lo, material_range[0]), min(hi, material_range[1])
+    return np.linspace(max(lo, 1.0), hi, points)
