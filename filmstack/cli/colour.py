@@ -155,13 +155,9 @@ def _fmt(x, digits=2):
 
 
 def _write_all(files):
-    from ..io.atomic import write_bytes_atomic, write_text_atomic
+    from ..io.atomic import write_files_atomic
 
-    for path, content in files:
-        if isinstance(content, bytes):
-            write_bytes_atomic(path, content)
-        else:
-            write_text_atomic(path, content)
+    write_files_atomic(files)
 
 
 # --- colour -------------------------------------------------------------------------------------

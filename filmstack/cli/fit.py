@@ -219,7 +219,7 @@ def fit_command(
                                        global_search=not local_only, seed=seed)
 
     # 4. outputs, rendered in memory, then moved into place
-    from ..io.atomic import write_bytes_atomic, write_text_atomic
+    from ..io.atomic import write_files_atomic
 
     if plot_target is not None:
         from ..report.fit_plots import plot_fit
@@ -258,11 +258,7 @@ def fit_command(
             files.append((path, map_csv(as_map)))
         else:
             files.append((path, map_csv(result)))
-    for path, content in files:
-        if isinstance(content, bytes):
-            write_bytes_atomic(path, content)
-        else:
-            write_text_atomic(path, content)
+    write_files_atomic(files)
 
     # 5. the answer
     if single:

@@ -131,7 +131,7 @@ def spectrum_command(
         quantities = ["R", "T", "A"] if absorbs else ["R", "T"]
 
     # 4. outputs, rendered in memory first, then each moved into place
-    from ..io.atomic import write_bytes_atomic, write_text_atomic
+    from ..io.atomic import write_files_atomic
 
     files: list[tuple[Path, object]] = []
     if out_target is not None:
@@ -152,11 +152,7 @@ def spectrum_command(
                                caption="filmstack: ideal homogeneous films with the given optical"
                                        " constants; verify with measurement.")
         files.append((path, figure_bytes(fig, fmt)))
-    for path, content in files:
-        if isinstance(content, bytes):
-            write_bytes_atomic(path, content)
-        else:
-            write_text_atomic(path, content)
+    write_files_atomic(files)
 
     # 5. the answer
     if json_out:

@@ -102,3 +102,15 @@ def write_bytes_atomic(path: str | os.PathLike, data: bytes) -> None:
     """Write ``data`` to ``path`` atomically (see :func:`atomic_write`)."""
     with atomic_write(path, "wb") as f:
         f.write(data)
+
+
+def write_files_atomic(files) -> None:
+    """Write each ``(path, content)`` pair atomically: bytes as they are, text as UTF-8.
+
+    Outputs are prepared in full before this is called, so bad input never leaves a file.
+    """
+    for path, content in files:
+        if isinstance(content, bytes):
+            write_bytes_atomic(path, content)
+        else:
+            write_text_atomic(path, content)
