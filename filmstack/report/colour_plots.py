@@ -78,7 +78,7 @@ def plot_colour_chart(thickness_nm, srgb, *, title: str, subtitle: str = "",
     minor, major = _tick_step(row)
     oog = None if out_of_gamut is None else np.asarray(out_of_gamut, dtype=bool)
     with rc_context(_STYLE):
-        cap = textwrap.fill(caption, 140) if caption else ""
+        cap = textwrap.fill(caption, 118) if caption else ""
         cap_in = 0.14 * (cap.count("\n") + 1) if cap else 0.0
         fig = Figure(figsize=(8.0, 1.25 + cap_in + 0.52 * n_rows), dpi=DPI)
         top = 1 - 0.95 / fig.get_figheight()
