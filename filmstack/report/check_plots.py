@@ -15,7 +15,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from .spectrum_plot import DPI, LINESTYLES, PALETTE, WIDTH_IN, _STYLE, band_wavelengths
+from .spectrum_plot import (DPI, LINESTYLES, PALETTE, WIDTH_IN, _STYLE, add_caption,
+                            band_wavelengths)
 
 __all__ = ["plot_check_spectra", "plot_yield", "plot_sensitivity", "check_wavelengths",
            "ENVELOPE_TRIALS"]
@@ -73,14 +74,6 @@ def _draw_limit(ax, req, scale, number, failed=False):
                 textcoords="offset points", fontsize=7.5, color=colour, ha="left",
                 va="bottom", zorder=7, annotation_clip=False)
     ax.set_ylim(y0, y1)
-
-
-def _caption(fig, caption):
-    if caption:
-        height_in = fig.get_figheight()
-        fig.get_layout_engine().set(rect=(0.0, 0.22 / height_in, 1.0, 1.0 - 0.22 / height_in))
-        fig.text(0.01, 0.06 / height_in, caption, ha="left", va="bottom", fontsize=7,
-                 color="#8a8a8a")
 
 
 def _titles(ax, title, subtitle):
@@ -206,7 +199,7 @@ def plot_check_spectra(stack, requirements, *, check=None, mc=None, wavelengths_
                       title="angle  polarisation", title_fontsize=8, borderaxespad=0.0)
         axes[-1].set_xlabel("Wavelength (nm, vacuum)")
         _titles(axes[0], title, subtitle)
-        _caption(fig, caption)
+        add_caption(fig, caption)
     return fig, axes
 
 
@@ -259,7 +252,7 @@ def plot_yield(mc, *, title=None, subtitle=None, caption=None):
                       f"{mc.confidence * 100:g} % interval (Clopper–Pearson)")
         ax.grid(axis="y", visible=False)
         _titles(ax, title, subtitle)
-        _caption(fig, caption)
+        add_caption(fig, caption)
     return fig, ax
 
 
@@ -309,5 +302,5 @@ def plot_sensitivity(sens, stack, *, title=None, subtitle=None, caption=None):
         cb = fig.colorbar(im, ax=ax, shrink=0.9, pad=0.12)
         cb.set_label("value change for +1 % thickness\n(each row / its scale)", fontsize=8)
         _titles(ax, title, subtitle)
-        _caption(fig, caption)
+        add_caption(fig, caption)
     return fig, ax

@@ -13,7 +13,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from .spectrum_plot import DPI, LINESTYLES, PALETTE, WIDTH_IN, _STYLE, band_wavelengths
+from .spectrum_plot import (DPI, LINESTYLES, PALETTE, WIDTH_IN, _STYLE, add_caption,
+                            band_wavelengths)
 
 __all__ = ["plot_design_spectra", "plot_reflectance_map", "plot_index_profile",
            "plot_merit_history", "design_wavelengths"]
@@ -154,7 +155,7 @@ def plot_design_spectra(stack, requirements, *, wavelengths_nm=None, title=None,
         if subtitle:
             axes[0].text(0.0, 1.015, subtitle, transform=axes[0].transAxes, ha="left",
                          va="bottom", fontsize=8.5, color="#6b6b6b")
-        _caption(fig, caption)
+        add_caption(fig, caption)
     return fig, axes
 
 
@@ -180,14 +181,6 @@ def _panel_limits(q, wl, curves, reqs):
     if q in ("R", "T", "A"):
         lo, hi = max(lo, 0.0), min(hi, 100.0)
     return lo, hi
-
-
-def _caption(fig, caption):
-    if caption:
-        height_in = fig.get_figheight()
-        fig.get_layout_engine().set(rect=(0.0, 0.22 / height_in, 1.0, 1.0 - 0.22 / height_in))
-        fig.text(0.01, 0.06 / height_in, caption, ha="left", va="bottom", fontsize=7,
-                 color="#8a8a8a")
 
 
 def plot_reflectance_map(stack, wavelengths_nm, angles_deg, polarization: str = "mean", *,
@@ -258,7 +251,7 @@ def plot_reflectance_map(stack, wavelengths_nm, angles_deg, polarization: str = 
         ax.set_ylabel("Angle of incidence (deg)")
         if title:
             ax.set_title(title)
-        _caption(fig, caption)
+        add_caption(fig, caption)
     return fig, ax
 
 
@@ -318,7 +311,7 @@ def plot_index_profile(stack, wavelength_nm: float | None = None, *, title=None,
         ax.set_xlabel("Height above the substrate (nm); light arrives from the right")
         ax.set_ylabel(f"Refractive index n at {wl:g} nm")
         ax.set_title(title or f"Index profile: {d.size} layers, {total:.1f} nm")
-        _caption(fig, caption)
+        add_caption(fig, caption)
     return fig, ax
 
 

@@ -153,12 +153,17 @@ def plot_spectrum(spectra, quantities: Sequence[str] = ("R", "T"), *, title: str
         if subtitle:
             axes[0].text(0.0, 1.015, subtitle, transform=axes[0].transAxes, ha="left",
                          va="bottom", fontsize=8.5, color="#6b6b6b")
-        if caption:
-            height_in = fig.get_figheight()
-            fig.get_layout_engine().set(rect=(0.0, 0.22 / height_in, 1.0, 1.0 - 0.22 / height_in))
-            fig.text(0.01, 0.06 / height_in, caption, ha="left", va="bottom", fontsize=7,
-                     color="#8a8a8a")
+        add_caption(fig, caption)
     return fig, (axes[0] if len(axes) == 1 else axes)
+
+
+def add_caption(fig, caption):
+    """A small grey caption line under the plot (room kept by the constrained layout)."""
+    if caption:
+        height_in = fig.get_figheight()
+        fig.get_layout_engine().set(rect=(0.0, 0.22 / height_in, 1.0, 1.0 - 0.22 / height_in))
+        fig.text(0.01, 0.06 / height_in, caption, ha="left", va="bottom", fontsize=7,
+                 color="#8a8a8a")
 
 
 def figure_bytes(fig, fmt: str) -> bytes:
