@@ -473,6 +473,20 @@ class Tabulated(Material):
         return out.reshape(wl.shape)
 
 
+def _set_oscillators(material, names: str) -> tuple:
+    """Store ``material.oscillators`` as float triples, checking there is at least one and each
+    is three finite numbers (``names`` says which, for the message)."""
+    osc = tuple(tuple(float(v) for v in o) for o in material.oscillators)
+    object.__setattr__(material, "oscillators", osc)
+    if not osc:
+        raise InputError(f"material '{material.name}': needs at least one oscillator")
+    for i, o in enumerate(osc):
+        if len(o) != 3 or not all(np.isfinite(o)):
+            raise InputError(f"material '{material.name}': oscillator {i} must be three finite "
+                             f"numbers ({names})")
+    return osc
+
+
 @dataclass(frozen=True, kw_only=True)
 class DrudeLorentz(Material):
     """Lorentz–Drude oscillators: ε(E) = ε∞ + Σ_j f_j ω_p²/(ω_j² − E² − iEΓ_j), E = hc/λ in eV.
@@ -491,14 +505,8 @@ class DrudeLorentz(Material):
 
     def __post_init__(self):
         self._check()
-        osc = tuple(tuple(float(v) for v in o) for o in self.oscillators)
-        object.__setattr__(self, "oscillators", osc)
-        if not osc:
-            raise InputError(f"material '{self.name}': needs at least one oscillator")
+        osc = _set_oscillators(self, "f, omega_eV, gamma_eV")
         for i, o in enumerate(osc):
-            if len(o) != 3 or not all(np.isfinite(o)):
-                raise InputError(f"material '{self.name}': oscillator {i} must be three finite "
-                                 "numbers (f, omega_eV, gamma_eV)")
             if o[0] < 0 or o[1] < 0 or o[2] < 0:
                 raise InputError(f"material '{self.name}': oscillator {i}: f, omega_eV and "
                                  "gamma_eV must be >= 0 (else k < 0)")
@@ -531,17 +539,10 @@ class TaucLorentz(Material):
 
     def __post_init__(self):
         self._check()
-        osc = tuple(tuple(float(v) for v in o) for o in self.oscillators)
-        object.__setattr__(self, "oscillators", osc)
-        if not osc:
-            raise InputError(f"material '{self.name}': needs at least one oscillator")
+        osc = _set_oscillators(self, "A_eV, E0_eV, C_eV")
         if not (np.isfinite(self.eg_ev) and self.eg_ev >= 0):
             raise InputError(f"material '{self.name}': Eg_eV must be >= 0")
-        for i, o in enumerate(osc):
-            if len(o) != 3 or not all(np.isfinite(o)):
-                raise InputError(f"material '{self.name}': oscillator {i} must be three finite "
-                                 "numbers (A_eV, E0_eV, C_eV)")
-            a, e0, c = o
+        for i, (a, e0, c) in enumerate(osc):
             if not (a > 0 and e0 > 0 and c > 0):
                 raise InputError(f"material '{self.name}': oscillator {i}: A_eV, E0_eV and "
                                  "C_eV must be > 0")
