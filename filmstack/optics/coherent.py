@@ -150,9 +150,11 @@ def _is_real(terms, pols):
 def _forward(problem: Problem, terms, pols, store=False):
     """Sweep [B, C] from the exit side up through every layer, for each polarisation.
 
-    Returns {pol: (B, C, logscale, stored)} with B, C (X,) complex at the top, logscale (X,) the
-    log of the factor removed, and, if ``store``, a tuple (v (L+1, 2, X) complex, ls (L+1, X),
-    cos (L, X), sin (L, X)).
+    Returns {pol: (B, C, logscale, stored)} with B, C (X,) complex at the top and logscale the
+    log of the factor removed ((X,), or one float on the real path). With ``store``, ``stored`` is
+    (v, ls, cos, sin, real): the vectors at every interface — (L+1, 4, X) float (Br, Bi, Cr, Ci)
+    on the real path, (L+1, 2, X) complex (B, C) otherwise — their log scales ((L+1,) or
+    (L+1, X)), cos δ and sin δ per layer (L, X), and whether the real path was taken.
     """
     inv, d = problem.inv, terms["d"]
     L = inv.size
@@ -380,7 +382,7 @@ def _as_complex_vectors(v, real):
     return np.stack([v[:, 0] + 1j * v[:, 1], v[:, 2] + 1j * v[:, 3]], axis=1)
 
 
-def _derivatives_complex(problem, terms, p, stored, D):
+def _derivatives_complex(problem, terms, p, stored):
     """Yield (j, dN/D, dD/D) for every layer j: general (absorbing or evanescent) case.
 
     Ratios are taken at the same interface, so the per-point scaling cancels.
@@ -423,7 +425,7 @@ def _real_to_ratios(parts, D, r, T, direct):
     return
 
 
-def _derivatives_real(problem, terms, p, stored, D):
+def _derivatives_real(problem, terms, p, stored):
     """Yield (j, g, Sr, Si, Qr, Qi) for every layer j when all layers are lossless and propagating.
 
     With N = η0 B − C and D = η0 B + C at the top: ∂N/∂d_j = g·((Sr − Qr) + i(Si − Qi)) and
@@ -512,10 +514,10 @@ def coherent_derivatives(n_layers, thickness_nm, n_incident, n_exit, wavelength_
             R[p][start:stop] = np.abs(r) ** 2
             T[p][start:stop] = Tp
             if stored[-1]:
-                derivs = _real_to_ratios(_derivatives_real(problem, terms, p, stored, D), D,
+                derivs = _real_to_ratios(_derivatives_real(problem, terms, p, stored), D,
                                          r, Tp, None if amp else (dR[p], dT[p], start, stop))
             else:
-                derivs = _derivatives_complex(problem, terms, p, stored, D)
+                derivs = _derivatives_complex(problem, terms, p, stored)
             for j, dN_D, dD_D in derivs:
                 drj = dN_D - r * dD_D
                 dR[p][j, start:stop] = 2.0 * (np.conj(r) * drj).real
