@@ -138,6 +138,12 @@ class TestBadInput:
         assert "--rate-pct" in self._bad(PASS, "--spec", SPEC, "--rate-pct", "TiO2=abc")
         assert "--min-yield" in self._bad(PASS, "--spec", SPEC, "--min-yield", 2)
 
+    def test_negative_seed_and_too_many_trials_are_input_errors(self):
+        # a negative seed reached numpy's generator (exit 3); a billion trials were drawn up
+        # front and ran the machine out of memory
+        assert "--seed" in self._bad(PASS, "--spec", SPEC, "--seed", -1)
+        assert "--trials" in self._bad(PASS, "--spec", SPEC, "--trials", 10**9)
+
     def test_band_outside_the_quotes_material_data(self, tmp_path):
         spec = tmp_path / "spec.yaml"
         spec.write_text(SPEC.read_text().replace("[430, 670]", "[300, 670]"))

@@ -221,8 +221,12 @@ def check_command(
     json_out: JsonFlag = False,
 ) -> None:
     # 1. options, before any work
-    if trials is not None and trials < 0:
-        raise InputError(f"--trials must be >= 0, got {trials}")
+    from ..check.montecarlo import MAX_TRIALS
+
+    if trials is not None and not 0 <= trials <= MAX_TRIALS:
+        raise InputError(f"--trials must be from 0 to {MAX_TRIALS:,}, got {trials}")
+    if seed < 0:
+        raise InputError(f"--seed must be >= 0, got {seed}")
     if not 0 < confidence < 1:
         raise InputError(f"--confidence must be between 0 and 1, got {confidence:g}")
     if min_yield is not None and not 0 <= min_yield <= 1:
