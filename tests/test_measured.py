@@ -236,3 +236,67 @@ class TestWavelengthRange:
         check_wavelength_range(m, self.stack(398.0, 900.0))
         with pytest.raises(OutOfRangeError):
             check_wavelength_range(m, self.stack(398.0, 900.0), margin_nm=(-5.0, 5.0))
+
+
+class TestInstrumentExports:
+    """Files as spectrophotometers and spreadsheets write them (common practice, no published
+    source): a free-text preamble, semicolons with decimal commas, a trailing separator,
+    Windows line endings, byte-order marks, UTF-16 and Windows-1252 text."""
+
+    ROWS = [(400.0, 44.921), (402.0, 41.843), (404.0, 37.5)]
+
+    def check(self, m):
+        (c,) = m.channels
+        np.testing.assert_array_equal(c.wavelength_nm, [r[0] for r in self.ROWS])
+        np.testing.assert_allclose(c.value, [r[1] / 100 for r in self.ROWS])
+        return c
+
+    def test_free_text_preamble_before_the_header_is_skipped(self):
+        text = ("Spectrometer XY-100\r\nOperator: J. Doe\r\nDate: 2026-11-30 14:02\r\n\r\n"
+                "Wavelength (nm);%R\r\n"
+                + "".join(f"{w};{r}\r\n" for w, r in self.ROWS))
+        c = self.check(one(text))
+        assert c.line[0] == 6                       # lines still counted from the file's top
+
+    def test_trailing_separator_on_every_line_is_an_empty_column(self):
+        text = ("Wavelength [nm],Reflectance [%],\r\n"
+                + "".join(f"{w},{r},\r\n" for w, r in self.ROWS))
+        self.check(one(text))
+
+    def test_trailing_separator_only_on_data_rows(self):
+        self.check(one("wavelength_nm;R_percent\n"
+                       + "".join(f"{w};{r};\n" for w, r in self.ROWS)))
+
+    def test_a_filled_extra_cell_is_still_an_error(self):
+        with pytest.raises(InputError, match="3 cells where the header has 2") as e:
+            one("wavelength_nm,R,\n400,0.3,x\n")
+        assert e.value.line == 2
+
+    def test_decimal_comma_with_semicolons(self):
+        text = "Wavelength (nm);R (%)\n" + "".join(
+            f"{w:.1f};{r:.3f}\n".replace(".", ",") for w, r in self.ROWS)
+        self.check(one(text))
+
+    def test_decimal_comma_bad_cell_is_named(self):
+        with pytest.raises(InputError, match="'abc' is not a number") as e:
+            one("wavelength_nm;R\n400,5;0,3\n401;abc\n")
+        assert e.value.line == 3
+
+    def test_no_header_anywhere_names_the_first_line(self):
+        with pytest.raises(InputError, match="no wavelength column") as e:
+            one("Instrument XY\nno table here\n")
+        assert e.value.line == 1
+
+    @pytest.mark.parametrize("encoding", ["utf-8-sig", "utf-16", "cp1252"])
+    def test_encodings_from_files(self, tmp_path, encoding):
+        text = ("Instrument: XY-100, 23 °C\r\nwavelength_nm,R_percent\r\n"
+                + "".join(f"{w},{r}\r\n" for w, r in self.ROWS))
+        f = tmp_path / "site 1.csv"
+        f.write_bytes(text.encode(encoding))
+        self.check(read_measured(f).sites[0])
+
+    def test_binary_file_is_refused(self, tmp_path):
+        f = tmp_path / "x.csv"
+        f.write_bytes(b"PK\x03\x04\x00\x00data")
+        with pytest.raises(InputError, match="not a text file"):
+            read_measured(f)

@@ -4,14 +4,19 @@ A measured file is a CSV table with a header line. Lines starting with ``#`` are
 comment of the form ``# key: value`` with one of the keys ``angle_deg``, ``polarization``,
 ``site``, ``x_mm``, ``y_mm`` sets that value for the whole file (any other comment is free text,
 e.g. ``# synthetic data``). Columns are separated by commas (or semicolons, or tabs: whichever
-the header uses). Column names are matched without regard to case or spaces:
+the header uses); with semicolons or tabs a decimal comma (``44,92``) is read as a decimal point.
+Files as instruments export them are read as they are: free-text lines before the header (the
+header is the first line naming a wavelength column), a trailing separator on every line (an
+empty last column), Windows line endings, a UTF-8 byte-order mark, UTF-16 with a byte-order
+mark, or Windows-1252 text. Column names are matched without regard to case or spaces:
 
 ========================  ==========================================================================
 column                    meaning
 ========================  ==========================================================================
 ``wavelength_nm``         vacuum wavelength in nm (also ``wavelength``, ``wavelength (nm)``,
                           ``lambda_nm``, ``wl_nm``); required
-``R`` / ``T``             reflectance / transmittance as a *fraction* 0–1
+``R`` / ``T``             reflectance / transmittance as a *fraction* 0–1 (also
+                          ``reflectance``, ``transmittance``)
 ``R_percent``, ``R (%)``  the same in percent (any ``%`` in the name, or ``_percent``/``_pct``)
 ``R_s``, ``T_p``, …       a value column for one polarisation (``s``, ``p`` or ``mean``)
 ``sigma``                 1σ uncertainty of the one value column, in its unit (``sigma_percent``
@@ -196,7 +201,7 @@ _POL_NAMES = {"polarization", "polarisation", "pol"}
 _SITE_NAMES = {"site", "site_id", "site id"}
 _X_NAMES = {"x_mm", "x", "x (mm)", "x [mm]"}
 _Y_NAMES = {"y_mm", "y", "y (mm)", "y [mm]"}
-_VALUE_RE = re.compile(r"^(r|t)(?:[_\s]?(s|p|mean))?$")
+_VALUE_RE = re.compile(r"^(r|t|reflectance|transmittance)(?:[_\s]?(s|p|mean))?$")
 _SIGMA_RE = re.compile(r"^(?:(?:sigma|u|uncertainty)(?:[_\s]?(r|t)(?:[_\s]?(s|p|mean))?)?"
                        r"|(r|t)(?:[_\s]?(s|p|mean))?[_\s](?:sigma|u|uncertainty))$")
 
@@ -270,7 +275,7 @@ def _parse_header(names: list[str], file: str, line: int) -> _Columns:
         base, pct = _strip_pct(n)
         m = _VALUE_RE.match(base)
         if m:
-            values.append(_ValueCol(i, raw.strip(), m.group(1).upper(), m.group(2),
+            values.append(_ValueCol(i, raw.strip(), m.group(1)[0].upper(), m.group(2),
                                     True if pct else None))
             continue
         m = _SIGMA_RE.match(base)
@@ -356,6 +361,9 @@ def _parse_meta(key: str, value: str, file: str, line: int):
     return x
 
 
+#: How many lines of an instrument's free-text preamble are searched for the header line.
+_PREAMBLE_LINES = 200
+
 _META_RE = re.compile(r"^#\s*([A-Za-z_]+)\s*[:=]\s*(.*?)\s*$")
 
 
@@ -421,9 +429,23 @@ def _read_measured_text(text: str, name: str, *, percent, angle_deg, polarizatio
                                      f"{meta[key][1]})", file=file, line=lineno)
                 meta[key] = (_parse_meta(key, m.group(2), file, lineno), lineno)
             continue
-        delimiter = max((",", ";", "\t"), key=s.count) if any(d in s for d in ",;\t") else ","
+        delimiter = _delimiter(s)
         header = next(csv.reader([s], delimiter=delimiter))
         header_line = lineno
+        if not _names_wavelength(header):
+            # An instrument's export often starts with free text (model, operator, date,
+            # settings) before the table: the header is the first line naming a wavelength.
+            for j in range(k, min(len(all_lines), k + _PREAMBLE_LINES)):
+                t = all_lines[j].strip()
+                if not t or t.startswith("#"):
+                    continue
+                d = _delimiter(t)
+                cand = next(csv.reader([t], delimiter=d))
+                if len(cand) > 1 and _names_wavelength(cand):
+                    delimiter, header, header_line, k = d, cand, j + 1, j + 1
+                    break
+        while len(header) > 1 and not header[-1].strip():
+            header.pop()                            # a trailing separator: an empty column
         break
     if header is not None:                          # the data rows: skip blanks and comments
         ncol = len(header)
@@ -434,6 +456,8 @@ def _read_measured_text(text: str, name: str, *, percent, angle_deg, polarizatio
             data_line_no = range(k + 1, k + 1 + len(rest))
             cells = _split(data_lines, delimiter, text)
             if any(len(row) != ncol for row in cells):
+                cells = _drop_empty_tail(cells, ncol)
+            if any(len(row) != ncol for row in cells):
                 cells = None                        # e.g. a line of spaces: the careful way
         if cells is None:
             data_idx = [i for i in range(k, len(all_lines))
@@ -441,7 +465,7 @@ def _read_measured_text(text: str, name: str, *, percent, angle_deg, polarizatio
                         and not all_lines[i].lstrip().startswith("#")]
             data_line_no = [i + 1 for i in data_idx]
             data_lines = [all_lines[i] for i in data_idx]
-            cells = _split(data_lines, delimiter, text)
+            cells = _drop_empty_tail(_split(data_lines, delimiter, text), ncol)
         del all_lines, rest
         if any(len(row) != ncol for row in cells):
             kk = next(i for i, row in enumerate(cells) if len(row) != ncol)
@@ -505,8 +529,16 @@ def _read_measured_text(text: str, name: str, *, percent, angle_deg, polarizatio
             arr = np.fromiter(map(float, txt), dtype=float, count=len(txt))
         except ValueError:
             arr = None
+            if delimiter != ",":                    # a decimal comma ('400,5;44,921')
+                try:
+                    arr = np.fromiter((float(t.replace(",", ".")) for t in txt), dtype=float,
+                                      count=len(txt))
+                except ValueError:
+                    arr = None
         if arr is None or not np.all(np.isfinite(arr)):
             for ln, t in zip(line_no, txt):          # raises at the first bad cell
+                if delimiter != "," and "," in t:
+                    t = t.replace(",", ".")
                 _number(t, name_of[ci], file, int(ln))
         return arr
 
@@ -637,6 +669,24 @@ def _read_measured_text(text: str, name: str, *, percent, angle_deg, polarizatio
     return out
 
 
+def _delimiter(line: str) -> str:
+    """The separator a header line uses: the most frequent of comma, semicolon and tab."""
+    return max((",", ";", "\t"), key=line.count) if any(d in line for d in ",;\t") else ","
+
+
+def _names_wavelength(cells: list[str]) -> bool:
+    """True if a cell of a (candidate) header line names a wavelength column, in nm or not."""
+    return any(_norm(c) in _WAVELENGTH_NAMES or _WAVELENGTH_OTHER_UNIT.match(_norm(c))
+               for c in cells)
+
+
+def _drop_empty_tail(cells: list[list[str]], ncol: int) -> list[list[str]]:
+    """Rows cut to ``ncol`` cells where the cells beyond are empty (a trailing separator, as
+    many instruments and spreadsheets write); other rows are left for the caller to report."""
+    return [row[:ncol] if len(row) > ncol and not "".join(row[ncol:]).strip() else row
+            for row in cells]
+
+
 def _split(lines: list[str], delimiter: str, text: str) -> list[list[str]]:
     """Cells of each line: the csv module when the file quotes anything, else a plain split
     (twice as fast, the same result without quotes)."""
@@ -665,15 +715,28 @@ def _check_value(value: float, scale: float, col: _ValueCol, file: str, line: in
 
 
 def _read_text(p: Path) -> str:
+    """The text of a measured file: UTF-8 (with or without a byte-order mark), UTF-16 with a
+    byte-order mark (Windows "Unicode text" exports), else Windows-1252 (a degree sign or µ in
+    an instrument's header written by an older Windows program)."""
     try:
-        return p.read_text(encoding="utf-8-sig")
+        data = p.read_bytes()
     except FileNotFoundError:
         raise InputError("file not found", file=str(p)) from None
-    except UnicodeDecodeError as exc:
-        raise InputError(f"not UTF-8 text ({exc.reason} at byte {exc.start})",
-                         file=str(p)) from None
     except OSError as exc:
         raise InputError(f"cannot read: {exc.strerror}", file=str(p)) from None
+    if data[:2] in (b"\xff\xfe", b"\xfe\xff"):
+        try:
+            return data.decode("utf-16")
+        except UnicodeDecodeError as exc:
+            raise InputError(f"not UTF-16 text ({exc.reason} at byte {exc.start})",
+                             file=str(p)) from None
+    if b"\x00" in data:
+        raise InputError(f"not a text file (binary data at byte {data.index(0)}); export the "
+                         "measurement as CSV text", file=str(p))
+    try:
+        return data.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        return data.decode("cp1252", errors="replace")
 
 
 def read_measured(path, *, percent: bool | None = None, angle_deg: float | None = None,
