@@ -156,3 +156,25 @@ class TestThickSubstrate:
         assert limits_kept(res, spec.limits)
         assert res.success, res.message
         assert res.stack.substrate_mm == 1.0
+
+
+def test_single_material_finds_the_quarter_wave_not_the_nearest_minimum():
+    # One material (MgF2-like n = 1.38 on n = 1.52): every design is one layer, and its merit
+    # has a minimum every half wave. The single-layer AR optimum is the quarter wave at the
+    # middle of the band, R_min = ((n_s - n^2) / (n_s + n^2))^2 (Macleod, Thin-Film Optical
+    # Filters, 4th ed., sec. 4.2.1). The default thick start used to refine to 300 nm (R up to
+    # the bare-glass 4.3 %).
+    mgf2 = Constant(name="MgF2", n=1.38)
+    spec = Spec(template=Stack(AIR, GLASS, reference_nm=550), materials={"L": mgf2},
+                requirements=(Requirement("R", "<=", 0.001, (450, 650), step_nm=10,
+                                          over="every"),),
+                limits=Limits(total_nm=300, layers=3, thinnest_nm=10))
+    res = synthesize(spec, seed=0, time_limit_s=20)
+    assert len(res.design) == 1
+    qw = 550 / (4 * 1.38)
+    assert res.design.d[0] == pytest.approx(qw, rel=0.1)
+    wl = np.array([550.0])
+    from filmstack.response import spectrum
+    r_min = ((1.52 - 1.38 ** 2) / (1.52 + 1.38 ** 2)) ** 2
+    assert spectrum(res.stack, wl).R[0, 0] == pytest.approx(r_min, abs=2e-3)
+

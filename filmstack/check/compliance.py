@@ -99,7 +99,7 @@ def check_limits(stack, spec: Spec) -> tuple[LimitResult, ...]:
     if lim.layers is not None:
         n = len(d)
         out.append(LimitResult("layers", n, lim.layers, lim.layers - n, n <= lim.layers,
-                               f"{n} layers"))
+                               f"{n} layer" if n == 1 else f"{n} layers"))
     if lim.thinnest_nm is not None and len(d):
         i = int(np.argmin(d))
         out.append(LimitResult("thinnest_nm", float(d[i]), lim.thinnest_nm,
@@ -112,8 +112,9 @@ def check_limits(stack, spec: Spec) -> tuple[LimitResult, ...]:
                if not any(same_medium(l.material, m) for m in allowed)]
         names = sorted({stack.layers[i].material.name for i in bad})
         detail = ("every layer uses an allowed material" if not bad else
-                  f"layers {', '.join(str(i + 1) for i in bad[:8])}"
-                  f"{' …' if len(bad) > 8 else ''} use {', '.join(names)}, not in the spec's "
+                  f"layer{'s' if len(bad) > 1 else ''} {', '.join(str(i + 1) for i in bad[:8])}"
+                  f"{' …' if len(bad) > 8 else ''} use{'' if len(bad) > 1 else 's'} "
+                  f"{', '.join(names)}, not in the spec's "
                   f"materials ({', '.join(m.name for m in spec.materials.values())})")
         out.append(LimitResult("materials", len(bad), 0, -len(bad), not bad, detail))
     return tuple(out)

@@ -339,7 +339,8 @@ def _print_human(stack, spec, verdict, sens, mc, cmp, tol, top, stack_file, spec
                  passed, yield_ok, min_yield):
     word = "PASS" if passed else "FAIL"
     title = (f"{Path(stack_file).name} against {Path(spec_file).name}: {word} "
-             f"({len(stack.layers)} layers, {stack.total_nm:.1f} nm)")
+             f"({len(stack.layers)} layer{'' if len(stack.layers) == 1 else 's'}, "
+             f"{stack.total_nm:.1f} nm)")
     print_table(_requirement_table(verdict, title))
     if verdict.limits:
         print_table(_limits_table(verdict))

@@ -106,7 +106,7 @@ def _write_report(report_dir: Path, result, spec, spec_path: Path) -> list[Path]
     out = []
     report_dir.mkdir(parents=True, exist_ok=True)
     name = spec_path.stem
-    sub = (f"{len(stack.layers)} layers, {stack.total_nm:.1f} nm on {stack.substrate.name}; "
+    sub = (f"{_layers(len(stack.layers))}, {stack.total_nm:.1f} nm on {stack.substrate.name}; "
            f"merit {result.merit:.4g}")
     figs = []
     if reqs:
@@ -211,7 +211,7 @@ def design_command(
 
     path, _ = out_target
     comment = (f"Designed by filmstack design from {spec_file.name} (seed {seed}): "
-               f"{len(result.stack.layers)} layers, {result.stack.total_nm:.1f} nm, merit "
+               f"{_layers(len(result.stack.layers))}, {result.stack.total_nm:.1f} nm, merit "
                f"{result.merit:.4g}; {result.message}.\n"
                f"Every requirement passes on the 4x finer grid: {'yes' if all_pass else 'no'}.")
     save_stack(result.stack, path, comment=comment)
@@ -250,7 +250,7 @@ def _print_tables(result, rows, coarse, fine, spec_file: Path) -> None:
         table.add_row(str(row["index"] + 1), row["material"], f"{row['nm']:.2f}",
                       f"{row['qwot']:.3f}", "fixed" if row["fixed"] else "")
     sub = stack.substrate.name + (f" ({stack.substrate_mm:g} mm)" if stack.substrate_mm else "")
-    print_table(table, title=f"Design for {spec_file.name}: {len(rows)} layers, "
+    print_table(table, title=f"Design for {spec_file.name}: {_layers(len(rows))}, "
                              f"{stack.total_nm:.1f} nm on {sub} (layer 1 touches the substrate)",
                 caption=f"QWOT at {stack.reference_nm:g} nm. Merit {result.merit:.4g} "
                         f"({result.message}); {result.elapsed_s:.1f} s.")
@@ -258,7 +258,7 @@ def _print_tables(result, rows, coarse, fine, spec_file: Path) -> None:
                     ("margin", "right"), "", ("value 4x", "right"), ("margin 4x", "right"), "")
     for i, (c, f) in enumerate(zip(coarse, fine)):
         req = c.requirement
-        rt.add_row(str(i), _short(req), _where(req), _display(req, c.value),
+        rt.add_row(str(i + 1), _short(req), _where(req), _display(req, c.value),
                    _display(req, c.margin), "pass" if bool(np.asarray(c.passed)) else "FAIL",
                    _display(req, f.value), _display(req, f.margin),
                    "pass" if bool(np.asarray(f.passed)) else "FAIL")
@@ -268,6 +268,11 @@ def _print_tables(result, rows, coarse, fine, spec_file: Path) -> None:
     if skipped:
         cap += f" Not optimised (checked only): {skipped}."
     print_table(rt, title="Requirements", caption=cap)
+
+
+def _layers(n: int) -> str:
+    """``1 layer``, ``9 layers``."""
+    return f"{n} layer" if n == 1 else f"{n} layers"
 
 
 def _short(req) -> str:
