@@ -146,6 +146,7 @@ class TestThicknessCommand:
         (["--lab", "50,0,0", "--under", "Si3N4"], "MATERIAL:NM"),
         (["--lab", "50,0,0", "--top", "0"], "--top"),
         (["--srgb", "#80808G", "--bare-srgb", "#808080"], "RRGGBB"),
+        (["--srgb", "#8B599A", "--bare-srgb", "#FFFFFF"], "over-exposed"),
     ])
     def test_bad_input_exit_2(self, args, msg):
         r = run("thickness", "--film", "SiO2", "--substrate", "Si", *args)

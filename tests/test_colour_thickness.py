@@ -222,9 +222,24 @@ class TestPhotoRoute:
         assert abs(r.candidates[0].thickness_nm - 275.0) > 3 or r.candidates[0].delta_e > 3
 
     def test_black_bare_channel_refused(self, oxide):
-        with pytest.raises(InputError, match="channel"):
-            observation_from_photo("#556677", "#00FF80", oxide)
+        with pytest.raises(InputError, match="channel below 10"):
+            observation_from_photo("#556677", "#00C080", oxide)
 
-    def test_clipped_channel_warned(self, oxide):
+    @pytest.mark.parametrize("bare_hex", ["#050505", "#0A0909"])
+    def test_too_dark_bare_substrate_refused(self, oxide, bare_hex):
+        # at code 5 one 8-bit step is 20 % of the linear value (IEC 61966-2-1 decoding): the
+        # gains would be 200-fold and the corrected colour meaningless (L* above 500)
+        with pytest.raises(InputError, match="too dark"):
+            observation_from_photo("#556677", bare_hex, oxide)
+
+    @pytest.mark.parametrize("bare_hex", ["#FFFFFF", "#FFD0C0", "#C0FFC0"])
+    def test_over_exposed_bare_substrate_refused(self, oxide, bare_hex):
+        # a clipped reference under-states the bare substrate's brightness, so every gain is
+        # too small: with #FFFFFF the best candidate came out at 91 nm for a 275 nm film
+        film_hex, _ = self._photo(oxide, 275.0, gains=(1.0, 1.0, 1.0), exposure=2.0)
+        with pytest.raises(InputError, match="over-exposed"):
+            observation_from_photo(film_hex, bare_hex, oxide)
+
+    def test_clipped_film_channel_warned(self, oxide):
         pc = observation_from_photo("#FF6677", "#A0A0A0", oxide)
-        assert any("clipped" in w for w in pc.warnings)
+        assert any("clipped" in w and "#FF6677" in w for w in pc.warnings)

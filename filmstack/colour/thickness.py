@@ -340,6 +340,12 @@ class PhotoCorrection:
     warnings: tuple
 
 
+#: Darkest 8-bit code a bare-substrate channel may have to serve as the camera's reference:
+#: below it one code step changes the linear value by more than 10 % (the linear segment of the
+#: sRGB decoding, IEC 61966-2-1:1999).
+_BARE_MIN_CODE = 10
+
+
 def observation_from_photo(film_hex: str, bare_hex: str, system: FilmSystem,
                            setting: ColourSetting | None = None, angle_deg: float = 0.0,
                            label: str = "photo") -> PhotoCorrection:
@@ -359,17 +365,31 @@ def observation_from_photo(film_hex: str, bare_hex: str, system: FilmSystem,
     Returns
     -------
     PhotoCorrection. Method: von Kries-style diagonal scaling in linear sRGB (module docstring).
+
+    Raises
+    ------
+    InputError
+        When the bare substrate cannot serve as the reference: a channel clipped at 255
+        (over-exposed: the true value is unknown, so every gain would be wrong) or below
+        10 of 255 (too coarsely quantised). A clipped film channel is only a warning.
     """
     setting = replace(setting or ColourSetting(), white="bare-substrate")
     film = cm.srgb_decode(cm.hex_to_srgb(film_hex))
     bare = cm.srgb_decode(cm.hex_to_srgb(bare_hex))
     warnings = []
-    if np.any(bare <= 0):
-        raise InputError(f"the bare substrate's colour {bare_hex} has a channel at 0: it cannot "
-                         "calibrate the camera (pick a brighter, unsaturated spot)")
-    if np.any(cm.hex_to_srgb(bare_hex) >= 1.0) or np.any(cm.hex_to_srgb(film_hex) >= 1.0):
-        warnings.append("a channel of the photo is at 255 (clipped): the correction is unreliable;"
-                        " use a darker exposure")
+    bare_code = np.round(cm.hex_to_srgb(bare_hex) * 255.0)
+    if np.any(bare_code >= 255):
+        raise InputError(f"the bare substrate's colour {bare_hex} has a channel at 255: it is "
+                         "over-exposed (clipped) and cannot calibrate the camera; take the photo "
+                         "darker so that no channel of the bare substrate reaches 255")
+    if np.any(bare_code < _BARE_MIN_CODE):
+        raise InputError(f"the bare substrate's colour {bare_hex} has a channel below "
+                         f"{_BARE_MIN_CODE} of 255: too dark to calibrate the camera (one 8-bit "
+                         "step there is over 10 % of the value); pick a brighter, unsaturated "
+                         "spot or expose the photo brighter")
+    if np.any(cm.hex_to_srgb(film_hex) >= 1.0):
+        warnings.append(f"the film's colour {film_hex} has a channel at 255 (clipped): the "
+                        "corrected colour is unreliable; use a darker exposure")
     bare_stk = bare_stack(system.stack(0.0))
     bare_c = stack_colour(bare_stk, [float(angle_deg)], replace(setting, white="diffuser"))
     diffuser = setting.diffuser_XYZ
