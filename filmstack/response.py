@@ -163,11 +163,20 @@ def _inputs(stack: Stack, wl, thicknesses_nm, layer_indices, extrapolate):
 
 
 def _thick_parts(stack, wl, ang, pol, N, d, n0, n_sub, extrapolate, derivatives=False):
-    """R, T (and dR, dT) of one polarisation for a thick substrate."""
+    """R, T (and dR, dT) of one polarisation for a thick substrate.
+
+    The coatings are computed with the substrate's real index, the common practice for weakly
+    absorbing substrates (:mod:`filmstack.optics.incoherent`), with one exception: the light
+    reflected by the front coating never enters the substrate, so its reflectance R_f is
+    computed with the substrate's complex index. An opaque substrate (a metal, silicon in the
+    ultraviolet) then reflects exactly what a semi-infinite one does, and T — which does not
+    involve R_f — stays the same from either side of the part (reciprocity).
+    """
     engine = coherent_derivatives if derivatives else coherent_response
     ns_real = n_sub.real
     s0 = n0[None, :] * np.sin(np.deg2rad(ang))[:, None]                       # (A, W)
     front = engine(N, d, n0, ns_real, wl, ang, pol)
+    front_r = engine(N, d, n0, n_sub, wl, ang, pol) if np.any(n_sub.imag != 0) else front
     inside = engine(N[..., ::-1, :], d[..., ::-1], ns_real, n0, wl, ang, pol,
                     snell_invariant=s0)
     Nb = stack.back_layer_indices(wl, extrapolate=extrapolate)
@@ -176,11 +185,11 @@ def _thick_parts(stack, wl, ang, pol, N, d, n0, n_sub, extrapolate, derivatives=
     back = coherent_response(Nb[::-1], db[::-1], ns_real, n_exit, wl, ang, pol,
                              snell_invariant=s0)
     tau = internal_transmittance(n_sub, stack.substrate_mm * 1e6, wl, s0)
-    R, T = incoherent_sum(front.R, front.T, inside.R, back.R, back.T, tau)
+    R, T = incoherent_sum(front_r.R, front.T, inside.R, back.R, back.T, tau)
     if not derivatives:
         return R, T, None, None
-    dR, dT = incoherent_sum_derivatives(front.R, front.T, inside.R, back.R, back.T, tau,
-                                        front.dR, front.dT, inside.dR[..., ::-1, :, :])
+    dR, dT = incoherent_sum_derivatives(front_r.R, front.T, inside.R, back.R, back.T, tau,
+                                        front_r.dR, front.dT, inside.dR[..., ::-1, :, :])
     return R, T, dR, dT
 
 

@@ -79,6 +79,8 @@ class TestSpectrum:
         # substrate, Rb, Tb the back coating from inside, τ = exp(−4πk d cosθ-path/λ). The faces
         # are computed here as separate semi-infinite stacks — the inside views by building the
         # stack the other way round (incident = substrate, layers reversed in deposition order).
+        # Our model (response._thick_parts): the faces use the substrate's real index, except Rf,
+        # the light that never enters the substrate, which sees its complex index.
         ns, ks, mm = 1.52, 3e-6, 1.5
         sub = medium(ns, ks, "sub")
         sub_real = medium(ns, 0.0, "sub-real")
@@ -90,6 +92,8 @@ class TestSpectrum:
         for pol in ("s", "p"):
             f_out = filmstack.spectrum(Stack(incident=AIR, substrate=sub_real, layers=front),
                                        WL, ang, pol)
+            rf = filmstack.spectrum(Stack(incident=AIR, substrate=sub, layers=front),
+                                    WL, ang, pol).R
             # from inside: the light meets the front layers substrate-side first
             s_in = np.rad2deg(np.arcsin(np.sin(np.deg2rad(ang)) / ns))
             rev = list(reversed(front))   # deposition order seen from inside: air side first
@@ -100,13 +104,33 @@ class TestSpectrum:
             cos1 = np.cos(np.deg2rad(s_in))[:, None]
             tau = np.exp(-4 * np.pi * ks * mm * 1e6 / (WL[None, :] * cos1))
             den = 1 - f_in.R * b_in.R * tau ** 2
-            R = f_out.R + f_out.T ** 2 * tau ** 2 * b_in.R / den
+            R = rf + f_out.T ** 2 * tau ** 2 * b_in.R / den
             T = f_out.T * b_in.T * tau / den
             sp = filmstack.spectrum(part, WL, ang, pol)
             np.testing.assert_allclose(sp.R, R, rtol=0, atol=1e-9)
             np.testing.assert_allclose(sp.T, T, rtol=0, atol=1e-9)
             if absorbing:
                 assert np.max(np.abs(f_in.R - f_out.R)) > 1e-3   # the orientation matters
+
+    @pytest.mark.parametrize("coated", [False, True])
+    def test_opaque_thick_substrate_reflects_like_a_semi_infinite_one(self, coated):
+        # A 1 mm metal plate is opaque (τ = exp(−4πk d/λ) underflows to 0), so no light comes
+        # back from its inside: the part reflects exactly what the front face on a semi-infinite
+        # substrate reflects, and at normal incidence a bare face gives Fresnel's
+        # R = |(1 − N)/(1 + N)|² with the complex N (Born & Wolf, Principles of Optics, §14.2).
+        layers = front_layers(False) if coated else []
+        thick = Stack(incident=AIR, substrate=METAL, layers=layers, substrate_mm=1.0)
+        semi = Stack(incident=AIR, substrate=METAL, layers=layers)
+        for pol in ("s", "p", "mean"):
+            a = filmstack.spectrum(thick, WL, ANG, pol)
+            b = filmstack.spectrum(semi, WL, ANG, pol)
+            np.testing.assert_allclose(a.R, b.R, rtol=0, atol=1e-12)
+            np.testing.assert_allclose(a.T, 0.0, rtol=0, atol=1e-15)
+            np.testing.assert_allclose(a.A, 1.0 - b.R, rtol=0, atol=1e-12)
+        if not coated:
+            N = complex(METAL.n, METAL.k)
+            r0 = filmstack.spectrum(thick, WL, 0.0, "s").R[0]
+            np.testing.assert_allclose(r0, abs((1 - N) / (1 + N)) ** 2, rtol=1e-12)
 
     def test_thick_part_reciprocity(self):
         # T of a whole part is the same from either side (reciprocity, Born & Wolf §1.6.2 /
