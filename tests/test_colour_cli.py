@@ -184,6 +184,7 @@ class TestChartCommand:
     @pytest.mark.parametrize("args,msg", [
         (["--out", "chart.jpg"], ".png or .svg"),
         (["--out", "chart.png", "--range", "0-100"], "--range"),
+        (["--out", "chart.png", "--range", "0:20000"], "false colours"),
         (["--out", "chart.png", "--csv", "x.txt"], ".csv"),
         (["--out", "chart.png", "--observer", "3"], "observer"),
     ])

@@ -16,7 +16,7 @@ from filmstack.colour import colorimetry as cm
 from filmstack.colour.stack_colour import ColourSetting
 from filmstack.colour.thickness import (CAUTION, FilmSystem, Observation, clear_cache,
                                         film_colour, film_colour_table, find_thickness,
-                                        observation_from_photo)
+                                        max_resolved_thickness_nm, observation_from_photo)
 from filmstack.errors import InputError
 
 
@@ -243,3 +243,38 @@ class TestPhotoRoute:
     def test_clipped_film_channel_warned(self, oxide):
         pc = observation_from_photo("#FF6677", "#A0A0A0", oxide)
         assert any("clipped" in w and "#FF6677" in w for w in pc.warnings)
+
+
+class TestThickFilmResolution:
+    """The 5 nm colour grid resolves the fringes of a film up to an optical path of
+    λ_min²/(2·5 nm) (Born & Wolf, Principles of Optics, 7th ed., §7.6: fringe period
+    Δλ = λ²/(2nd cos θ); Nyquist sampling). Beyond, the colour aliases."""
+
+    def _lab(self, oxide, d_nm, wl):
+        from filmstack.response import spectrum
+        R = spectrum(oxide.stack(0.0), wl, 0.0, "mean",
+                     thicknesses_nm=np.asarray(d_nm, float).reshape(-1, 1)).R[:, 0, :]
+        w5 = cm.COLOUR_WAVELENGTHS_NM
+        white = cm.spectra_to_XYZ(np.ones(w5.size), w5)
+        return cm.XYZ_to_Lab(cm.spectra_to_XYZ(R, wl), white)
+
+    def test_limit_for_oxide_on_silicon(self, oxide):
+        # 380² / (2 · 5) / (2 n) with n(SiO2, 380 nm) ≈ 1.47 (Malitson 1965): about 4.9 µm
+        assert max_resolved_thickness_nm(oxide) == pytest.approx(4900, rel=0.03)
+        assert max_resolved_thickness_nm(oxide, 60.0) > max_resolved_thickness_nm(oxide)
+
+    def test_colour_inside_the_limit_matches_fine_sampling(self, oxide):
+        # below the limit the 5 nm grid agrees with a 0.25 nm grid; well beyond it does not
+        lim = max_resolved_thickness_nm(oxide)
+        d = np.array([0.5 * lim, 0.95 * lim, 3.0 * lim])
+        coarse = self._lab(oxide, d, cm.COLOUR_WAVELENGTHS_NM)
+        fine = self._lab(oxide, d, np.arange(380.0, 780.0 + 1e-9, 0.25))
+        de = cm.delta_e_2000(coarse, fine)
+        assert np.all(de[:2] < 0.2), de
+        assert de[2] > 0.5, de
+
+    def test_range_beyond_the_limit_refused(self, oxide):
+        with pytest.raises(InputError, match="--range.*false colours"):
+            film_colour_table(oxide, ColourSetting(), 0.0, (0.0, 20000.0), 5.0)
+        with pytest.raises(InputError, match="at most 48"):
+            find_thickness(oxide, Observation((56.0, 1.0, -7.0)), range_nm=(0.0, 6000.0))

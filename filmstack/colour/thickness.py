@@ -59,7 +59,8 @@ from .stack_colour import ColourSetting, bare_stack, colour_wavelengths, stack_c
 
 __all__ = ["CAUTION", "FilmSystem", "Observation", "FilmColourTable", "Candidate",
            "ThicknessResult", "PhotoCorrection", "film_colour_table", "film_colour",
-           "observation_from_photo", "find_thickness", "clear_cache"]
+           "observation_from_photo", "find_thickness", "clear_cache",
+           "max_resolved_thickness_nm"]
 
 #: The caution every thickness-from-colour result carries (DESIGN.md §7).
 CAUTION = ("Thickness from colour is indicative: colour repeats with thickness and cameras shift "
@@ -294,14 +295,56 @@ def _grid(range_nm, step_nm) -> np.ndarray:
     return grid
 
 
+def max_resolved_thickness_nm(system: FilmSystem, angle_deg: float = 0.0) -> float:
+    """The thickest film (nm) whose colour the 5 nm colour grid computes without aliasing.
+
+    The reflectance of a film of optical path ``P = 2 Σ n_j d_j cos θ_j`` (film and
+    under-layers) repeats in wavelength every ``Δλ ≈ λ² / P``. Sampled every ``δ`` = 5 nm from
+    ``λ_min`` = 380 nm, the fringes are resolved while ``Δλ(λ_min) >= 2 δ`` (Nyquist), i.e.
+    ``P <= λ_min² / (2 δ)`` ≈ 14.4 µm: about 4.9 µm of SiO2. Thicker films alias to false
+    colours (in reality they look nearly neutral, the fringes averaging out). Uses the real
+    part of n at ``λ_min``; 0 when the under-layers alone use up the limit.
+
+    References: Born & Wolf, Principles of Optics, 7th ed., §7.6 (fringes of equal
+    inclination, Δλ = λ²/(2nd cos θ)); Shannon's sampling theorem.
+    """
+    wl = cm.COLOUR_WAVELENGTHS_NM
+    lam, step = float(wl[0]), float(wl[1] - wl[0])
+    budget = lam * lam / (2.0 * step)                              # P at the limit, nm
+    def n_at(material) -> float:
+        return float(np.real(np.asarray(material.nk(lam))).ravel()[0])
+
+    s0 = n_at(system.incident) * math.sin(math.radians(float(angle_deg)))   # n sin θ, invariant
+
+    def path_per_nm(material) -> float:
+        n = n_at(material)
+        return 2.0 * n * math.sqrt(max(0.0, 1.0 - (s0 / n) ** 2))
+
+    used = sum(path_per_nm(l.material) * l.thickness_nm for l in system.under)
+    return max(0.0, (budget - used) / path_per_nm(system.film))
+
+
+def _check_resolved(system: FilmSystem, hi_nm: float, angle_deg: float) -> None:
+    limit = max_resolved_thickness_nm(system, angle_deg)
+    if hi_nm > limit:
+        raise InputError(
+            f"the thickness range (--range) reaches {hi_nm:g} nm, but colour is computed every "
+            f"5 nm of wavelength, which resolves the interference of {system.film.name} here up "
+            f"to {math.floor(limit):g} nm; thicker films would show false colours (in reality "
+            f"they look nearly neutral): search at most {math.floor(limit):g} nm, or fit a "
+            "measured spectrum (filmstack fit)")
+
+
 def film_colour_table(system: FilmSystem, setting: ColourSetting, angle_deg: float = 0.0,
                       range_nm=(0.0, 1500.0), step_nm: float = 1.0) -> FilmColourTable:
     """The film's colours on the grid ``range_nm`` every ``step_nm`` nm (both ends included).
 
     Cached per (system, setting, angle, range, step) within the process; arrays are read-only.
     Cost: one engine call of shape (N, L) × 81 wavelengths (about 0.1 s for N = 1501).
+    A range beyond :func:`max_resolved_thickness_nm` is an :class:`InputError`.
     """
     grid = _grid(range_nm, step_nm)
+    _check_resolved(system, float(grid[-1]), angle_deg)
     key = (system._key(), setting, float(angle_deg), float(grid[0]), float(grid[-1]),
            float(step_nm))
     table = _TABLES.get(key)
