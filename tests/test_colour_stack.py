@@ -143,3 +143,23 @@ class TestColourGrid:
         st = Stack(incident=AIR, substrate=GLASS, layers=(Layer(narrow, 60.0),))
         with pytest.raises(OutOfRangeError, match="ir-only.*400-700"):
             stack_colour(st)
+
+
+class TestThickLayerWarning:
+    # a layer's fringes repeat every λ²/(2nd) (Born & Wolf, Principles of Optics, 7th ed.,
+    # §7.6); sampled every 5 nm from 380 nm they alias beyond 2nd = 380²/10 nm
+    def test_thick_layer_warns_thin_multilayer_does_not(self):
+        import warnings
+
+        from filmstack.errors import FilmstackWarning
+        sub = Constant(name="glass", n=1.52)
+        film = Constant(name="film", n=1.46)
+        thick = Stack(incident=AIR, substrate=sub, layers=(Layer(film, 20000.0),))
+        with pytest.warns(FilmstackWarning, match=r"layers\[0\].*alias"):
+            stack_colour(thick, [0.0])
+        # 40 layers of 150 nm: 6 µm optical thickness in all, each layer far below the limit
+        multi = Stack(incident=AIR, substrate=sub, layers=tuple(
+            Layer(Constant(name=f"m{i % 2}", n=1.46 + 0.8 * (i % 2)), 150.0) for i in range(40)))
+        with warnings.catch_warnings():
+            warnings.simplefilter("error", FilmstackWarning)
+            stack_colour(multi, [0.0])

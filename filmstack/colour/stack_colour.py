@@ -226,6 +226,33 @@ def colour_wavelengths(materials) -> np.ndarray:
     return cut
 
 
+def _warn_unresolved(stack, wl) -> None:
+    """Warn when a layer is too thick for the colour grid: its fringes repeat every
+    Δλ ≈ λ²/P (P = 2 n d, normal incidence: the worst case) and the grid samples every δ nm, so
+    they alias once Δλ(λ_min) < 2 δ (Born & Wolf, Principles of Optics, 7th ed., §7.6).
+
+    Judged per layer: a multilayer of many thin layers (a 26-layer mirror, 7.5 µm of optical
+    thickness in all) has weak fine ripple and its colour is unaffected (ΔE00 0.01 against a
+    0.25 nm grid), while one thick layer gives strong fringes (ΔE00 7 for 20 µm of oxide)."""
+    import warnings
+
+    from ..errors import FilmstackWarning
+    if not stack.layers:
+        return
+    lam, step = float(wl[0]), float(wl[1] - wl[0])
+    path = 2.0 * np.real(stack.layer_indices(np.array([lam])))[:, 0] \
+        * np.asarray(stack.thicknesses_nm, dtype=float)
+    limit = lam * lam / (2.0 * step)
+    if np.any(path > limit):
+        i = int(np.argmax(path))
+        warnings.warn(f"layers[{i}] ({stack.layers[i].material.name}, "
+                      f"{stack.thicknesses_nm[i]:g} nm) is thicker than the {step:g} nm colour "
+                      f"grid resolves (optical thickness {path[i] / 2:.0f} nm, at most "
+                      f"{limit / 2:.0f} nm): its fine fringes alias, so the computed colour is "
+                      "not reliable (such a layer looks nearly neutral)", FilmstackWarning,
+                      stacklevel=3)
+
+
 def bare_stack(stack):
     """The uncoated part: ``stack`` without its front layers (back side and media kept)."""
     return replace(stack, layers=(), free=())
@@ -283,6 +310,8 @@ def stack_colour(stack, angles_deg=0.0, setting: ColourSetting | None = None, *,
     angles = _check_angles(angles_deg)
     wl = colour_wavelengths(stack.materials) if wavelengths_nm is None else \
         np.asarray(wavelengths_nm, dtype=float)
+    if thicknesses_nm is None and layer_indices is None and wavelengths_nm is None:
+        _warn_unresolved(stack, wl)
     sp = spectrum(stack, wl, angles, setting.polarization, thicknesses_nm=thicknesses_nm,
                   layer_indices=layer_indices)
     values = _side_spectrum(sp, setting.side)                     # (..., A, W)
