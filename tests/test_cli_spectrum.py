@@ -181,6 +181,20 @@ class TestOptions:
         root = ET.fromstring(target.read_bytes())
         assert root.tag == "{http://www.w3.org/2000/svg}svg"
 
+    def test_single_wavelength(self, tmp_path):
+        # --from = --to is one wavelength (a laser line): table, JSON and a plot with a visible
+        # point, and no warning from the plot's axis limits
+        target = tmp_path / "one.png"
+        result = run(self.lens, "--from", 550, "--to", 550, "--json", "--plot", target)
+        assert result.exit_code == 0, result.output
+        d = json.loads(result.stdout)
+        ref = api(self.lens, [550.0], [0.0], "mean")
+        assert d["wavelength_nm"] == [550.0] and d["R"] == ref.R.tolist()
+        assert "warning" not in result.stderr
+        assert png_size(target.read_bytes())[0] == 1200
+        table = run(self.lens, "--from", 550, "--to", 550)
+        assert "550 nm (1 wavelength);" in table.stdout
+
     def test_json_mode_prints_only_json(self, tmp_path):
         result = run(self.lens, "--step", 50, "--json", "--plot", tmp_path / "x.png")
         json.loads(result.stdout)                       # nothing else on stdout
@@ -259,7 +273,14 @@ BAD_INPUTS = {
                          [], ["part.yaml:3", "layers[0].material", "Unobtainium"]),
     "negative thickness": ("substrate: crown-glass\nlayers:\n  - {material: TiO2, nm: -5}\n", [],
                            ["part.yaml:3", "layers[0].nm", "-5"]),
-    "from above to": (LENS, ["--from", 700, "--to", 400], ["--from", "700", "below", "--to"]),
+    "from above to": (LENS, ["--from", 700, "--to", 400],
+                      ["--from", "700", "not be above", "--to"]),
+    "wavelengths in micrometres": (LENS, ["--from", 0.4, "--to", 0.7, "--step", 0.01],
+                                   ["part.yaml", "crown-glass", "0.4-0.7 nm", "µm", "400 nm"]),
+    "absorbing incident medium": ("incident: Si\nsubstrate: crown-glass\nlayers: []\n", [],
+                                  ["part.yaml", "'incident'", "Si", "absorbs"]),
+    "tab in the YAML": ("substrate: crown-glass\nlayers:\n\t- {material: TiO2, nm: 10}\n", [],
+                        ["part.yaml:3", "tab"]),
     "zero step": (LENS, ["--step", 0], ["--step", "> 0"]),
     "angle 95": (LENS, ["--angle", 95], ["--angle", "95", "90"]),
     "negative angle": (LENS, ["--angle", -10], ["--angle", "-10"]),

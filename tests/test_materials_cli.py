@@ -30,6 +30,39 @@ def test_list_table():
     assert r.exit_code == 0 and "fused-silica" in r.stdout and "sellmeier" in r.stdout
 
 
+def test_list_shows_aliases_and_the_whole_caption():
+    # the caption was printed inside the table and lost its middle ("process: use your own
+    # measured") when the source column was cut; aliases are what users type (README)
+    r = run("materials", "list")
+    assert r.exit_code == 0
+    rows = {line.split()[0]: line for line in r.stdout.splitlines() if line.strip()}
+    assert "silicon" in rows["Si"] and "titania" in rows["TiO2"] and "drude-lorentz" in rows["Al"]
+    text = " ".join(r.stdout.split())
+    assert ("Film data depend on the deposition process: use your own measured data for real "
+            "designs.") in text
+
+
+def test_show_single_wavelength():
+    r = run("materials", "show", "fused-silica", "--from", "587.6", "--to", "587.6", "--json")
+    assert r.exit_code == 0, r.output
+    out = json.loads(r.stdout)
+    # Malitson, J. Opt. Soc. Am. 55, 1205 (1965): n(587.6 nm) = 1.4585
+    assert out["wavelength_nm"] == [587.6] and out["n"][0] == pytest.approx(1.4585, abs=1e-4)
+
+
+def test_plot_needs_a_range(tmp_path):
+    out = tmp_path / "n.png"
+    r = run("materials", "plot", "Ag", "--from", "500", "--to", "500", "--out", str(out))
+    assert r.exit_code == 2 and "--from" in r.stderr and not out.exists()
+
+
+def test_csv_in_micrometres_says_so(tmp_path):
+    p = tmp_path / "film.csv"
+    p.write_text("wavelength_nm,n,k\n0.4,2.3,0.01\n0.5,2.2,0\n", encoding="utf-8")
+    r = run("materials", "show", str(p), "--from", "400", "--to", "500", "--step", "50")
+    assert r.exit_code == 2 and "µm" in r.stderr and "Traceback" not in r.stderr
+
+
 def test_show_json_keys_and_values():
     r = run("materials", "show", "silicon", "--from", "500", "--to", "700", "--step", "50",
             "--json")

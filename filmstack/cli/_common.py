@@ -122,12 +122,13 @@ def _finite(value: float, option: str, unit: str) -> float:
 def wavelength_grid(from_nm: float, to_nm: float, step_nm: float, *,
                     names: tuple[str, str, str] = ("--from", "--to", "--step"),
                     max_points: int = 1_000_001) -> np.ndarray:
-    """The wavelength grid ``from_nm, from_nm + step_nm, …`` up to ``to_nm`` (included when on the grid).
+    """The wavelength grid ``from_nm, from_nm + step_nm, …`` up to ``to_nm`` (included if on it).
 
     Parameters
     ----------
     from_nm, to_nm, step_nm
-        First and last wavelength and the step, nm (vacuum). Need 0 < from < to, step > 0.
+        First and last wavelength and the step, nm (vacuum). Need 0 < from <= to, step > 0;
+        from = to gives that one wavelength.
     names
         The option names, for messages.
     max_points
@@ -144,10 +145,13 @@ def wavelength_grid(from_nm: float, to_nm: float, step_nm: float, *,
     step = _finite(step_nm, s_name, "nm")
     if lo <= 0:
         raise InputError(f"{f_name} must be a wavelength > 0 nm, got {lo:g}")
-    if lo >= hi:
-        raise InputError(f"{f_name} ({lo:g} nm) must be below {t_name} ({hi:g} nm)")
+    if lo > hi:
+        raise InputError(f"{f_name} ({lo:g} nm) must not be above {t_name} ({hi:g} nm); "
+                         f"the same value for both gives one wavelength")
     if step <= 0:
         raise InputError(f"{s_name} must be > 0 nm, got {step:g}")
+    if lo == hi:
+        return np.array([lo])
     n = int(math.floor((hi - lo) / step + 1e-9)) + 1
     if n > max_points:
         raise InputError(f"{s_name} {step:g} nm gives {n} wavelengths from {lo:g} to {hi:g} nm; "
@@ -255,9 +259,11 @@ def material_folders(dirs: Iterable[str | os.PathLike] | None, *,
 
 def check_wavelengths_in_range(stack, wavelength_nm, *, file: str | None = None,
                                options: str = "--from/--to") -> None:
-    """Raise :class:`OutOfRangeError` if a material of ``stack`` has no data at some wavelength.
+    """Check a stack against a wavelength grid before any computation, naming the stack file.
 
-    Checked before any computation so the message names the stack file and the options to change.
+    Raises :class:`OutOfRangeError` if a material of ``stack`` has no data at some wavelength
+    (with a hint when the grid looks like µm), and :class:`InputError` (key ``incident``) if the
+    incident medium absorbs on the grid: light must arrive through a transparent medium.
     """
     wl = np.asarray(wavelength_nm, dtype=float)
     if wl.size == 0:
@@ -266,9 +272,20 @@ def check_wavelengths_in_range(stack, wavelength_nm, *, file: str | None = None,
     for m in stack.materials:
         lo, hi = m.range_nm
         if wmin < lo or wmax > hi:
+            asked = f"{wmin:g} nm" if wmin == wmax else f"{wmin:g}-{wmax:g} nm"
+            hint = ""
+            if wmax * 100 <= lo:
+                hint = f"; wavelengths are in nm ({wmin:g} µm is {wmin * 1000:g} nm)"
             raise OutOfRangeError(
-                f"material '{m.name}' has data from {lo:g} to {hi:g} nm, but {wmin:g}-{wmax:g} "
-                f"nm was asked for (change {options})", file=file)
+                f"material '{m.name}' has data from {lo:g} to {hi:g} nm, but {asked} was asked "
+                f"for (change {options}){hint}", file=file)
+    k_in = np.asarray(stack.incident.nk(wl), dtype=complex).imag
+    if np.any(k_in > 0):
+        i = int(np.argmax(k_in))
+        raise InputError(f"the incident medium '{stack.incident.name}' absorbs (k = "
+                         f"{k_in[i]:.3g} at {wl[i]:g} nm): light must arrive through a "
+                         "transparent medium such as air, glass or water", file=file,
+                         key="incident")
 
 
 # --- JSON ---------------------------------------------------------------------------------

@@ -83,21 +83,22 @@ def list_command(materials_dir: MaterialsDir = None, json_out: JsonFlag = False)
     if json_out:
         print_json([{k: v for k, v in r.items() if k != "origin"} for r in rows])
         return
-    table = make_table("name", "model", ("range nm", "right"), "source",
-                       title=f"{len(rows)} materials",
-                       caption="'filmstack materials show NAME' prints n, k and the full source. "
-                               "Film data depend on the deposition process: use your own "
-                               "measured data for real designs.")
-    for col, width in zip(table.columns, (12, 13, 15)):
-        col.no_wrap, col.min_width = True, width
-    table.columns[-1].no_wrap = True
-    table.columns[-1].overflow = "ellipsis"
-    for r in rows:
-        short = r["source"]
-        lo, hi = r["range_nm"]
-        table.add_row(r["name"], r["model"], _fmt_range((lo, float("inf") if hi is None else hi)),
-                      short)
-    print_table(table)
+    cells = [(r["name"], ", ".join(r["aliases"]), r["model"],
+              _fmt_range((r["range_nm"][0], float("inf") if r["range_nm"][1] is None
+                          else r["range_nm"][1])), r["source"]) for r in rows]
+    table = make_table("name", "also", "model", ("range nm", "right"), "source")
+    # fixed widths: every column but the source shown in full, the source cut to the rest
+    widths = [max([len(table.columns[i].header)] + [len(c[i]) for c in cells]) for i in range(4)]
+    widths.append(max(20, stdout_console().width - sum(widths) - 2 * 4 - 3))
+    for col, width in zip(table.columns, widths):
+        col.no_wrap, col.width, col.overflow = True, width, "ellipsis"
+    for c in cells:
+        table.add_row(*c)
+    # title and caption as whole lines (a rich table caption is cut to the table's columns)
+    print_table(table, title=f"{len(rows)} materials (names and aliases are case-insensitive)",
+                caption="'filmstack materials show NAME' prints n, k and the full source. "
+                        "Film data depend on the deposition process: use your own measured "
+                        "data for real designs.")
 
 
 SHOW_HELP = """\
@@ -169,6 +170,10 @@ def plot_command(
     b = float(to_nm) if to_nm is not None else min(hi, 2500.0)
     if from_nm is None and to_nm is None and not b > a:
         a, b = lo, hi
+    if not a < b:
+        raise InputError(f"--from ({a:g} nm) must be below --to ({b:g} nm) for a plot; "
+                         f"'filmstack materials show {name} --from {a:g} --to {a:g}' prints "
+                         "one wavelength")
     wl = wavelength_grid(a, b, (b - a) / 600.0 if b > a else 1.0)
     nk = _nk(m, wl, extrapolate)
 

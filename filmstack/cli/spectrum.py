@@ -64,6 +64,13 @@ def _describe(stack, path: str) -> str:
             f"on {sub}{back}, light from {stack.incident.name}")
 
 
+def _grid_text(wl, step_nm: float) -> str:
+    """'400-700 nm, step 5 nm', or '1064 nm' for a single wavelength."""
+    if wl.size == 1:
+        return f"{wl[0]:g} nm"
+    return f"{wl[0]:g}-{wl[-1]:g} nm, step {step_nm:g} nm"
+
+
 def _summary_table(spectra, quantities):
     from ..io.spectra_out import band_summary
 
@@ -145,7 +152,7 @@ def spectrum_command(
         from ..report.spectrum_plot import figure_bytes, plot_spectrum
 
         path, fmt = plot_target
-        grid = f"{wl[0]:g}-{wl[-1]:g} nm, step {step_nm:g} nm"
+        grid = _grid_text(wl, step_nm)
         fig, _ = plot_spectrum(spectra, quantities, title=f"Spectrum of {stack_file.name}",
                                subtitle=_describe(stack, str(stack_file)).split(": ", 1)[1]
                                + f"; {grid}",
@@ -160,7 +167,8 @@ def spectrum_command(
 
         print_json(spectrum_json(spectra))
         return
-    caption = (f"{wl[0]:g}-{wl[-1]:g} nm, step {step_nm:g} nm ({wl.size} wavelengths); "
+    plural = "s" if wl.size != 1 else ""
+    caption = (f"{_grid_text(wl, step_nm)} ({wl.size} wavelength{plural}); "
                "R, T, A in % of the incident power.")
     print_table(_summary_table(spectra, quantities), title=_describe(stack, str(stack_file)),
                 caption=caption)

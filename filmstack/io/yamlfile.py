@@ -106,6 +106,14 @@ def _record_lines(node, path: str, lines: dict, loader: _Loader, file: str) -> N
             _record_lines(item, sub, lines, loader, file)
 
 
+def _char_at(text: str, line: int, column: int) -> str:
+    """The character at 0-based ``line``, ``column`` of ``text`` ('' if there is none)."""
+    lines = text.splitlines()
+    if 0 <= line < len(lines) and 0 <= column < len(lines[line]):
+        return lines[line][column]
+    return ""
+
+
 def load_yaml_text(text: str, name: str = "<text>") -> tuple[object, dict[str, int]]:
     """Parse YAML text; see :func:`load_yaml`. ``name`` is used in error messages."""
     loader = _Loader(text)
@@ -124,6 +132,8 @@ def load_yaml_text(text: str, name: str = "<text>") -> tuple[object, dict[str, i
         line = mark.line + 1 if mark is not None else None
         col = f", column {mark.column + 1}" if mark is not None else ""
         what = " ".join(s for s in (exc.context, exc.problem) if s)
+        if mark is not None and _char_at(text, mark.line, mark.column) == "\t":
+            what += " (a tab: YAML indents with spaces only)"
         raise InputError(f"not valid YAML{col}: {what}", file=name, line=line) from None
     except yaml.YAMLError as exc:
         raise InputError(f"not valid YAML: {exc}", file=name) from None

@@ -135,10 +135,15 @@ def plot_spectrum(spectra, quantities: Sequence[str] = ("R", "T"), *, title: str
                     style = LINESTYLES.get(s.polarization, "-")
                     label = f"{_angle_label(a)}  {s.polarization}"
                     ax.plot(wl, vals, color=colour, linestyle=style, linewidth=1.6,
-                            label=label, solid_capstyle="round")
+                            label=label, solid_capstyle="round",
+                            marker="o" if wl.size == 1 else None, markersize=5)
                     allv.append(vals)
             ax.set_ylim(*_limits(np.concatenate(allv)))
-            ax.set_xlim(wl[0], wl[-1])
+            if wl.size > 1:
+                ax.set_xlim(wl[0], wl[-1])
+            else:                                    # one wavelength: a point in a window
+                pad = max(1.0, 0.01 * wl[0])
+                ax.set_xlim(wl[0] - pad, wl[0] + pad)
             ax.set_ylabel(LABELS[q])
             ax.tick_params(labelbottom=True)
         axes[-1].set_xlabel("Wavelength (nm, vacuum)")
