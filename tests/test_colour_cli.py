@@ -167,8 +167,9 @@ class TestChartCommand:
         w, h = png_size(png.read_bytes())
         assert w > 1000 and h > 400
         lines = csv.read_text().splitlines()
-        assert lines[0].startswith("#") and lines[1].startswith("thickness_nm,L,a,b")
-        rows = [l.split(",") for l in lines[2:]]
+        assert lines[0].startswith("#") and lines[2].startswith("thickness_nm,L,a,b")
+        assert lines[1].startswith("# caution: Thickness from colour is indicative")
+        rows = [l.split(",") for l in lines[3:]]
         assert len(rows) == 61 and float(rows[-1][0]) == 600
         lab = film_colour(oxide, [100.0], ColourSetting()).Lab[0, 0]
         np.testing.assert_allclose([float(x) for x in rows[10][1:4]], lab, atol=1e-4)

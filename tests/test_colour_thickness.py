@@ -162,6 +162,9 @@ class TestInversion:
         assert len(d["candidates"]) == 3
         assert set(d["candidates"][0]) >= {"thickness_nm", "delta_e", "Lab", "srgb_hex"}
         assert d["caution"] == CAUTION and "spectrum" in CAUTION
+        # one wording (DESIGN.md §7) in the JSON, on stderr and in the images
+        from filmstack.cli._common import CAUTION_COLOUR
+        assert CAUTION == CAUTION_COLOUR
 
     def test_table_is_cached_and_read_only(self, oxide):
         clear_cache()

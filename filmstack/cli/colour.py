@@ -305,6 +305,7 @@ def chart_command(
         coarse = film_colour_table(system, setting, a, (lo, hi), step)
         lines = [f"# filmstack colour chart: {system.describe()}; {sub}; CIELAB relative to "
                  "the perfect diffuser; XYZ 0-100",
+                 f"# caution: {CAUTION_COLOUR}",
                  "thickness_nm,L,a,b,X,Y,Z,srgb_hex,out_of_gamut"]
         for t, lab, xyz, hx, oog in zip(coarse.thickness_nm, coarse.Lab, coarse.XYZ,
                                         coarse.srgb_hex, coarse.out_of_gamut):

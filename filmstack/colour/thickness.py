@@ -62,9 +62,11 @@ __all__ = ["CAUTION", "FilmSystem", "Observation", "FilmColourTable", "Candidate
            "observation_from_photo", "find_thickness", "clear_cache",
            "max_resolved_thickness_nm"]
 
-#: The caution every thickness-from-colour result carries (DESIGN.md §7).
-CAUTION = ("Thickness from colour is indicative: colour repeats with thickness and cameras shift "
-           "colour. Confirm with a measured spectrum or ellipsometry before a process decision.")
+#: The caution every thickness-from-colour result carries (DESIGN.md §7, word for word, as the
+#: command line prints it).
+CAUTION = ("Thickness from colour is indicative; colour repeats with thickness, cameras shift "
+           "colour. Process decisions use a measured spectrum or ellipsometry, and local codes "
+           "and qualified practice.")
 
 _ZOOM_POINTS = 21                # samples per bracket and round of the local search
 _ZOOM_ROUNDS = 2                 # a bracket of 2 grid steps ends 100x narrower (0.02 nm at 1 nm)
