@@ -112,20 +112,37 @@ def _absorptance(R, T):
     return np.where(np.abs(A) < 1e-14, 0.0, A)
 
 
-def _grid(wavelengths_nm, angles_deg):
-    """Check the user's grid, naming the arguments as this module's functions spell them."""
-    wl = np.atleast_1d(np.asarray(wavelengths_nm, dtype=float))
-    ang = np.atleast_1d(np.asarray(angles_deg, dtype=float))
+def _floats(value, name: str) -> np.ndarray:
+    """``value`` as an at-least-1-D float array; text or other non-numbers name the argument."""
+    try:
+        return np.atleast_1d(np.asarray(value, dtype=float))
+    except (TypeError, ValueError):
+        raise InputError(f"{name} must be numbers, got {value!r}") from None
+
+
+def _scalar(value, name: str) -> float:
+    """One number (a wavelength or an angle of a single-point function)."""
+    x = _floats(value, name)
+    if x.size != 1:
+        raise InputError(f"{name} must be one number, got {x.size} values")
+    return float(x.ravel()[0])
+
+
+def _grid(wavelengths_nm, angles_deg, names=("wavelengths_nm", "angles_deg")):
+    """Check the user's grid, naming the arguments as the calling function spells them."""
+    wn, an = names
+    wl = _floats(wavelengths_nm, wn)
+    ang = _floats(angles_deg, an)
     if wl.ndim != 1 or wl.size == 0:
-        raise InputError(f"wavelengths_nm must be a non-empty 1-D list, got shape {wl.shape}")
+        raise InputError(f"{wn} must be a non-empty 1-D list, got shape {wl.shape}")
     if not np.all(np.isfinite(wl)) or np.any(wl <= 0):
         bad = wl[~(np.isfinite(wl) & (wl > 0))][0]
-        raise InputError(f"wavelengths_nm must be finite and > 0 nm, got {fmt(bad)}")
+        raise InputError(f"{wn} must be finite and > 0 nm, got {fmt(bad)}")
     if ang.ndim != 1 or ang.size == 0:
-        raise InputError(f"angles_deg must be a number or a non-empty 1-D list, got shape {ang.shape}")
+        raise InputError(f"{an} must be a number or a non-empty 1-D list, got shape {ang.shape}")
     ok = np.isfinite(ang) & (ang >= 0) & (ang < 90)
     if not np.all(ok):
-        raise InputError(f"angles_deg must be in [0, 90) degrees, got {fmt(ang[~ok][0])}")
+        raise InputError(f"{an} must be in [0, 90) degrees, got {fmt(ang[~ok][0])}")
     return wl, ang
 
 
@@ -247,14 +264,15 @@ def spectrum_derivatives(stack: Stack, wavelengths_nm, angles_deg=0.0,
     N, d, n0, n_sub = _inputs(stack, wl, thicknesses_nm, layer_indices, extrapolate)
     if stack.substrate_mm is None:
         res = coherent_derivatives(N, d, n0, n_sub, wl, ang, polarization)
-        return SpectrumDerivatives(wl, ang, polarization, res.R, res.T, res.A, res.r, res.t,
+        return SpectrumDerivatives(wl, ang, polarization, res.R, res.T,
+                                   _absorptance(res.R, res.T), res.r, res.t,
                                    dR=res.dR, dT=res.dT, dA=res.dA, dr=res.dr, dt=res.dt,
                                    phase_r=res.phase_r, dphase_r=res.dphase_r)
     parts = [_thick_parts(stack, wl, ang, p, N, d, n0, n_sub, extrapolate, derivatives=True)
              for p in pols]
     n = len(parts)
     R, T, dR, dT = (sum(p[i] for p in parts) / n for i in range(4))
-    return SpectrumDerivatives(wl, ang, polarization, R, T, 1.0 - R - T, dR=dR, dT=dT,
+    return SpectrumDerivatives(wl, ang, polarization, R, T, _absorptance(R, T), dR=dR, dT=dT,
                                dA=-(dR + dT))
 
 
@@ -294,7 +312,8 @@ def phase_response(stack: Stack, wavelengths_nm, angle_deg: float = 0.0,
         raise InputError(f"phase needs polarization 's' or 'p', got {polarization!r}")
     if side not in ("reflected", "transmitted"):
         raise InputError(f"side must be 'reflected' or 'transmitted', got {side!r}")
-    wl, _ = _grid(wavelengths_nm, angle_deg)
+    angle_deg = _scalar(angle_deg, "angle_deg")
+    wl, _ = _grid(wavelengths_nm, angle_deg, names=("wavelengths_nm", "angle_deg"))
     omega = 2.0 * np.pi * SPEED_OF_LIGHT_NM_PER_FS / wl                        # rad/fs
     a0 = _amplitude(stack, wl, angle_deg, polarization, side, extrapolate)
     h = 1e-3 * omega
@@ -341,9 +360,12 @@ def field_profile(stack: Stack, wavelength_nm: float, angle_deg: float = 0.0,
     """
     if polarization not in ("s", "p"):
         raise InputError(f"field profile needs polarization 's' or 'p', got {polarization!r}")
+    step_nm = _scalar(step_nm, "step_nm")
     if not (np.isfinite(step_nm) and step_nm > 0):
         raise InputError(f"step_nm must be > 0, got {step_nm!r}")
-    wl = np.array([float(wavelength_nm)])
+    angle_deg = _scalar(angle_deg, "angle_deg")
+    wl, _ = _grid(_scalar(wavelength_nm, "wavelength_nm"), angle_deg,
+                  names=("wavelength_nm", "angle_deg"))
     N, d, n0, n_sub = _inputs(stack, wl, None, None, extrapolate)
     sv = stack_vectors(N, d, n0, n_sub, wl, [angle_deg], polarization)
     L = d.size
@@ -390,5 +412,5 @@ def field_profile(stack: Stack, wavelength_nm: float, angle_deg: float = 0.0,
     k, e, Nm = media["sub"]
     emit(zs, v[0], total - zs, k, e, Nm, L)
     return FieldProfile(np.concatenate(depths), np.concatenate(e2), tops[::-1].copy(),
-                        np.concatenate(where).astype(int), float(wavelength_nm),
+                        np.concatenate(where).astype(int), float(wl[0]),
                         float(angle_deg), polarization)

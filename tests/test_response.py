@@ -424,3 +424,42 @@ class TestFieldProfile:
         A = filmstack.spectrum(st, [wl], angle, "s").A[0, 0]
         assert A > 0.05
         assert A_field == pytest.approx(A, rel=2e-6)
+
+
+# ------------------------------------------------------------------------------------------------
+# bad arguments: an InputError (a ValueError) naming the argument, as the API promises
+
+
+class TestArguments:
+    st = Stack(incident=AIR, substrate=GLASS, layers=front_layers(True))
+
+    @pytest.mark.parametrize("call, words", [
+        (lambda st: filmstack.spectrum(st, "abc"), ["wavelengths_nm", "'abc'"]),
+        (lambda st: filmstack.phase_response(st, WL, [0.0, 10.0]), ["angle_deg", "one number"]),
+        (lambda st: filmstack.phase_response(st, WL, 95.0), ["angle_deg", "95"]),
+        (lambda st: filmstack.field_profile(st, [500.0, 600.0]), ["wavelength_nm", "one"]),
+        (lambda st: filmstack.field_profile(st, 500.0, 90.0), ["angle_deg", "90"]),
+        (lambda st: filmstack.field_profile(st, -5.0), ["wavelength_nm", "-5"]),
+    ])
+    def test_named_in_the_message(self, call, words):
+        with pytest.raises(ValueError) as info:
+            call(self.st)
+        assert isinstance(info.value, filmstack.InputError)
+        for w in words:
+            assert w in str(info.value)
+
+    def test_field_profile_takes_a_one_element_list(self):
+        a = filmstack.field_profile(self.st, [550.0], 10.0, "p")
+        b = filmstack.field_profile(self.st, 550.0, 10.0, "p")
+        np.testing.assert_array_equal(a.e2, b.e2)
+        assert a.wavelength_nm == 550.0
+
+    def test_derivatives_report_the_same_absorptance_as_the_spectrum(self):
+        # A is 1 − R − T with round-off below 1e-14 set to 0, in both functions
+        lossless = Stack(incident=AIR, substrate=GLASS, layers=front_layers(False))
+        for st in (lossless, Stack(incident=AIR, substrate=GLASS, layers=front_layers(False),
+                                   substrate_mm=1.0)):
+            d = filmstack.spectrum_derivatives(st, WL, ANG, "mean")
+            s = filmstack.spectrum(st, WL, ANG, "mean")
+            np.testing.assert_array_equal(d.A, s.A)
+            assert np.all(d.A == 0.0)
