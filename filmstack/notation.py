@@ -167,20 +167,28 @@ class _Parser:
                 raise self.error("exponent in a factor", start,
                                  hint="write the factor as a plain decimal such as 0.001H")
             if ch not in _LETTERS:
-                raise self.error(f"factor {self.text[start:self.pos].strip()} without a symbol",
-                                 start, hint=f"expected a symbol after it, found "
-                                             f"{self.describe(ch)}")
+                word = self.text[start:self.pos].strip()
+                hint = f"expected a symbol after it, found {self.describe(ch)}"
+                if self._after_item(start) and word.isdigit():
+                    hint += f"; a power is written with ^, as in (HL)^{word}"
+                raise self.error(f"factor {word} without a symbol", start, hint=hint)
         if ch in _LETTERS:
             if ch not in self.known:
-                raise self.error(f"unknown symbol '{ch}'", hint=self._unknown(ch))
+                hint = self._unknown(ch)
+                nxt = self.text[self.pos + 1:self.pos + 2]
+                if ch in "xX" and nxt.isdigit() and self._after_item(self.pos):
+                    hint += f"; a power is written with ^, as in (HL)^{nxt}"
+                raise self.error(f"unknown symbol '{ch}'", hint=hint)
             self.pos += 1
             return ("layer", ch, factor, self.power())
         if ch == "^":
             raise self.error("unexpected '^'",
                              hint="a power must follow a symbol or a group, as in H^3 or (HL)^7")
-        raise self.error(f"unexpected {self.describe(ch)}",
-                         hint=f"expected a symbol ({', '.join(self.symbols) or 'none defined'}), "
-                              "a factor or '('")
+        hint = (f"expected a symbol ({', '.join(self.symbols) or 'none defined'}), "
+                "a factor or '('")
+        if ch == "*" and self._after_item(self.pos):
+            hint = "a power is written with ^, as in (HL)^7"
+        raise self.error(f"unexpected {self.describe(ch)}", hint=hint)
 
     def factor(self) -> float:
         start = self.pos
@@ -226,6 +234,11 @@ class _Parser:
                              hint="a power must be a whole number >= 1")
         raise self.error("missing power after '^'", caret,
                          hint=f"expected a whole number such as ^7, found {self.describe(ch)}")
+
+    def _after_item(self, pos: int) -> bool:
+        """True if a group or a symbol ends just before ``pos`` (where a power could follow)."""
+        before = self.text[:pos].rstrip()
+        return bool(before) and (before[-1] == ")" or before[-1] in self.known)
 
     def _unknown(self, ch: str) -> str:
         known = ", ".join(self.symbols) if self.symbols else "none"

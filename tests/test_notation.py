@@ -91,6 +91,10 @@ MISTAKES = [
     ("H*L", 2, ["unexpected '*'"]),
     ("H+L", 2, ["unexpected '+'"]),
     ("__import__('os')", 1, ["unexpected '_'"]),  # never eval: code is just bad notation
+    # powers written the way other notations write them
+    ("(HL)**7 H", 5, ["unexpected '*'", "a power is written with ^", "(HL)^7"]),
+    ("(HL)x7", 5, ["unknown symbol 'x'", "a power is written with ^", "(HL)^7"]),
+    ("(HL)7", 5, ["factor 7 without a symbol", "a power is written with ^", "(HL)^7"]),
 ]
 
 
