@@ -255,22 +255,31 @@ def monte_carlo(stack, spec_or_requirements, *, trials: int, seed: int = 0,
     passes = [p[:done] for p in passes]
     all_pass = np.logical_and.reduce(passes) if passes else np.ones(done, bool)
     k = int(all_pass.sum())
+
+    def interval(k_pass):
+        # without any error every trial is the nominal stack: the yield is known exactly
+        # (1 or 0), not a binomial estimate
+        if tol.is_zero:
+            return (k_pass / done, k_pass / done)
+        return clopper_pearson(k_pass, done, confidence)
+
     per = []
     for req, v, p in zip(reqs, values, passes):
         kp = int(p.sum())
         per.append(RequirementYield(
-            req, kp / done, clopper_pearson(kp, done, confidence),
+            req, kp / done, interval(kp),
             {q: float(x) for q, x in zip(PERCENTILES, np.percentile(v, PERCENTILES))},
             float(np.mean(v)), float(np.std(v, ddof=1)) if done > 1 else 0.0, v, p))
     notes = []
     if tol.is_zero:
-        notes.append("no tolerances given: every trial is the nominal stack")
+        notes.append("every tolerance is zero: every trial is the nominal stack, and the yield "
+                     "is exact (no interval)")
     used = {aliases.get(l.material.name, l.material.name) for l in stack.layers}
     for what, table in (("rate_pct", tol.rate_pct), ("index_pct", tol.index_pct)):
         for name, pct in table.items():
             if name != "*" and pct and name not in used:
                 notes.append(f"tolerances.{what} for '{name}' matches no layer of the stack")
-    return YieldResult(k / done, clopper_pearson(k, done, confidence), confidence, done,
+    return YieldResult(k / done, interval(k), confidence, done,
                        int(trials), int(seed), tol, tuple(per), all_pass, d[:done],
                        None if scale is None else scale[:done], seconds,
                        interrupted=interrupted, notes=tuple(notes))

@@ -160,7 +160,8 @@ def _yield_table(mc):
     table = make_table("#", "requirement", ("pass %", "right"), ("interval %", "right"),
                        ("p5", "right"), ("median", "right"), ("p95", "right"),
                        title=(f"Monte Carlo yield {100 * mc.yield_:.1f} % "
-                              f"[{100 * mc.ci[0]:.1f}–{100 * mc.ci[1]:.1f}], {mc.trials} trials, "
+                              f"[{100 * mc.ci[0]:.1f}–{100 * mc.ci[1]:.1f}], {mc.trials} "
+                              f"trial{'' if mc.trials == 1 else 's'}, "
                               f"seed {mc.seed}"),
                        caption=f"{mc.confidence * 100:g} % exact (Clopper–Pearson) intervals; "
                                "percentiles over the trials")
