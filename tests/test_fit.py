@@ -424,3 +424,24 @@ class TestUniformity:
         site = doc["sites"][1]
         assert site["site"] == "p1" and site["x_mm"] == 1.0
         assert set(site["parameters"][0]) == {"name", "value", "stderr"}
+
+
+class TestFitPlot:
+    def test_legend_has_one_entry_per_curve_and_leaves_a_full_panel_uncovered(self):
+        # four curves (two angles × s, p) fill the panel: the legend goes beside it
+        from filmstack.report.fit_plots import plot_fit
+        wl = np.arange(420.0, 900.0, 4.0)
+        st = oxide_on_si(start=300.0, lo=50.0, hi=600.0)
+        chans = []
+        for angle in (0.0, 45.0):
+            for pol in ("s", "p"):
+                y = spectrum(st.with_thicknesses([312.0]), wl, angle, pol).R[0]
+                chans.append(Channel("R", angle, pol, wl, y))
+        res = fit_spectrum(model_from_stack(st), Measurement(tuple(chans), "site"))
+        fig, (ax, _) = plot_fit(res)
+        leg = ax.get_legend()
+        assert [t.get_text() for t in leg.get_texts()] == [
+            "R at 0°, s", "R at 0°, p", "R at 45°, s", "R at 45°, p"]
+        fig.canvas.draw()
+        box, panel = leg.get_window_extent(), ax.get_window_extent()
+        assert box.x0 >= panel.x1 - 1

@@ -64,28 +64,34 @@ def plot_fit(result, *, title: str | None = None, subtitle: str | None = None,
         gs = fig.add_gridspec(2, 1, height_ratios=(3, 1.3))
         ax = fig.add_subplot(gs[0])
         axr = fig.add_subplot(gs[1], sharex=ax)
+        handles, labels = [], []
         for k, (ch, model) in enumerate(result.curves()):
             colour = PALETTE[k % len(PALETTE)]
             wl = ch.wavelength_nm
-            label = f"{ch.quantity} at {ch.angle_deg:g}°, {ch.polarization}"
             if ch.sigma is not None and wl.size <= 400:
-                ax.errorbar(wl, 100 * ch.value, yerr=100 * ch.sigma, fmt="o", ms=2.4,
-                            color=colour, alpha=0.55, elinewidth=0.6, label=f"{label}, measured")
+                pts = ax.errorbar(wl, 100 * ch.value, yerr=100 * ch.sigma, fmt="o", ms=2.4,
+                                  color=colour, alpha=0.55, elinewidth=0.6)
             else:
-                ax.plot(wl, 100 * ch.value, "o", ms=2.4, color=colour, alpha=0.55,
-                        label=f"{label}, measured")
+                (pts,) = ax.plot(wl, 100 * ch.value, "o", ms=2.4, color=colour, alpha=0.55)
             fine = _fine_grid(wl)
             curve = result.model_at(ch, fine) if (result.model is not None and
                                                   fine.size > wl.size) else model
-            ax.plot(fine if curve is not model else wl, 100 * curve, "-", lw=1.4, color=colour,
-                    label=f"{label}, fitted")
+            (line,) = ax.plot(fine if curve is not model else wl, 100 * curve, "-", lw=1.4,
+                              color=colour)
             axr.plot(wl, 100 * (ch.value - model), "o", ms=2.0, color=colour, alpha=0.7)
+            handles.append((pts, line))
+            labels.append(f"{ch.quantity} at {ch.angle_deg:g}°, {ch.polarization}")
         axr.axhline(0.0, color="#6b6b6b", lw=0.8)
         ax.set_ylabel("Measured and fitted (%)")
         axr.set_ylabel("Residual (% points)")
         axr.set_xlabel("Wavelength (nm)")
         ax.tick_params(labelbottom=False)
-        ax.legend(loc="best", ncols=1 if len(result.curves()) < 3 else 2)
+        # One entry per curve (points measured, line fitted); beside the panel when several
+        # curves fill it, so the legend never hides data.
+        where = dict(loc="best") if len(handles) <= 2 else dict(loc="upper left",
+                                                               bbox_to_anchor=(1.01, 1.0))
+        ax.legend(handles, labels, title="points measured, lines fitted", fontsize=8,
+                  title_fontsize=8, **where)
         lines = [f"{p.name} = {_fmt_value(p.value, p.stderr, p.unit)}"
                  + ("  [on bound]" if p.at_bound else "") for p in result.parameters]
         lines.append(f"residual RMS = {100 * result.rms:.3g} %")
