@@ -300,3 +300,9 @@ class TestInstrumentExports:
         f.write_bytes(b"PK\x03\x04\x00\x00data")
         with pytest.raises(InputError, match="not a text file"):
             read_measured(f)
+
+
+def test_wavelengths_in_micrometres_are_named():
+    with pytest.raises(InputError, match="look like µm") as e:
+        one("wavelength_nm,R\n0.40,0.3\n0.41,0.31\n")
+    assert e.value.line == 2

@@ -361,6 +361,9 @@ def _parse_meta(key: str, value: str, file: str, line: int):
     return x
 
 
+#: Measured wavelengths all below this (nm) are taken for µm written in a nm column.
+_MIN_PLAUSIBLE_NM = 50.0
+
 #: How many lines of an instrument's free-text preamble are searched for the header line.
 _PREAMBLE_LINES = 200
 
@@ -549,6 +552,10 @@ def _read_measured_text(text: str, name: str, *, percent, angle_deg, polarizatio
     if np.any(wl <= 0):
         i = first(wl <= 0)
         raise InputError(f"wavelength {wl[i]:g} nm must be > 0", file=file, line=int(line_no[i]))
+    if wl.max() < _MIN_PLAUSIBLE_NM:
+        raise InputError(f"column '{name_of[cols.wavelength]}': wavelengths {wl.min():g} to "
+                         f"{wl.max():g} look like µm; give them in nm (e.g. 400, not 0.4)",
+                         file=file, line=int(line_no[0]))
     if cols.angle is not None:
         ang = numeric(cols.angle)
         bad = (ang < 0.0) | (ang >= 90.0)
