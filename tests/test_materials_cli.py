@@ -117,3 +117,30 @@ def test_plot_bad_suffix_writes_nothing(tmp_path):
     out = tmp_path / "ag.gif"
     r = run("materials", "plot", "Ag", "--out", str(out))
     assert r.exit_code == 2 and not out.exists()
+
+
+def test_user_text_with_brackets_is_printed_as_written(tmp_path):
+    # a source like "run [bold] 42 [/x]" is the user's text, not rich markup (it crashed with
+    # an internal error, exit 3)
+    (tmp_path / "odd.yaml").write_text(
+        'name: odd\nsource: "Larkspur run [bold] 42 [/x] (synthetic)"\nmodel: constant\n'
+        "n: 1.5\n", encoding="utf-8")
+    r = run("materials", "show", "odd", "--materials-dir", str(tmp_path), "--from", "500",
+            "--to", "500")
+    assert r.exit_code == 0, r.output
+    assert "Source: Larkspur run [bold] 42 [/x] (synthetic)" in r.stdout
+    r = run("materials", "list", "--materials-dir", str(tmp_path))
+    assert r.exit_code == 0, r.output
+    assert "[bold] 42" in r.stdout
+
+
+def test_materials_dir_that_is_a_file(tmp_path):
+    f = tmp_path / "TiO2-run42.yaml"
+    f.write_text("name: x\n", encoding="utf-8")
+    r = run("materials", "list", "--materials-dir", str(f))
+    assert r.exit_code == 2 and "is a file" in r.stderr and "folder" in r.stderr
+
+
+def test_show_constant_is_valid_at_every_wavelength():
+    r = run("materials", "show", "air", "--from", "500", "--to", "500")
+    assert r.exit_code == 0 and "valid at every wavelength" in r.stdout

@@ -251,6 +251,9 @@ def material_folders(dirs: Iterable[str | os.PathLike] | None, *,
     out = []
     for d in dirs or ():
         p = Path(d).expanduser()
+        if p.is_file():
+            raise InputError(f"{option}: '{d}' is a file; expected a folder of material files "
+                             "(a single material file is named in the stack file instead)")
         if not p.is_dir():
             raise InputError(f"{option}: folder not found: {d}")
         out.append(p)

@@ -92,8 +92,10 @@ def list_command(materials_dir: MaterialsDir = None, json_out: JsonFlag = False)
     widths.append(max(20, stdout_console().width - sum(widths) - 2 * 4 - 3))
     for col, width in zip(table.columns, widths):
         col.no_wrap, col.width, col.overflow = True, width, "ellipsis"
+    from rich.text import Text
+
     for c in cells:
-        table.add_row(*c)
+        table.add_row(*(Text(x) for x in c))        # user text, never rich markup
     # title and caption as whole lines (a rich table caption is cut to the table's columns)
     print_table(table, title=f"{len(rows)} materials (names and aliases are case-insensitive)",
                 caption="'filmstack materials show NAME' prints n, k and the full source. "
@@ -127,11 +129,18 @@ def show_command(name: NameArg, from_nm: FromNm = 400.0, to_nm: ToNm = 800.0,
                     "n": nk.real, "k": nk.imag})
         return
     console = stdout_console()
-    console.print(f"[bold]{m.name}[/bold]  ({m.model}, valid {_fmt_range(m.range_nm)} nm"
-                  + (f"; also: {', '.join(m.aliases)}" if m.aliases else "") + ")")
-    console.print(f"Source: {m.source}")
+    rng = _fmt_range(m.range_nm)
+    valid = "at every wavelength" if rng == "all" else f"{rng} nm"
+    from rich.text import Text
+
+    # names, sources and notes are the user's text: never read as rich markup ("[run 42]")
+    head = Text(m.name, style="bold")
+    head.append(f"  ({m.model}, valid {valid}"
+                + (f"; also: {', '.join(m.aliases)}" if m.aliases else "") + ")")
+    console.print(head)
+    console.print(Text(f"Source: {m.source}"))
     if m.notes:
-        console.print(f"Notes: {m.notes}")
+        console.print(Text(f"Notes: {m.notes}"))
     table = make_table(("wavelength nm", "right"), ("n", "right"), ("k", "right"))
     for w, v in zip(wl, nk):
         table.add_row(f"{w:g}", f"{v.real:.5f}", f"{v.imag:.3e}" if v.imag else "0")
