@@ -129,9 +129,11 @@ def test_user_text_with_brackets_is_printed_as_written(tmp_path):
             "--to", "500")
     assert r.exit_code == 0, r.output
     assert "Source: Larkspur run [bold] 42 [/x] (synthetic)" in r.stdout
+    (tmp_path / "odd.yaml").write_text(
+        'name: odd\nsource: "[/x] run 42"\nmodel: constant\nn: 1.5\n', encoding="utf-8")
     r = run("materials", "list", "--materials-dir", str(tmp_path))
     assert r.exit_code == 0, r.output
-    assert "[bold] 42" in r.stdout
+    assert "[/x] run 42" in r.stdout
 
 
 def test_materials_dir_that_is_a_file(tmp_path):
