@@ -300,6 +300,20 @@ class TestMapLayouts:
             assert abs(res.values[i, 0] - d) < 4 * res.stderr[i, 0]
         assert res.site == ["a0", "b1", "a2", "b3"]
 
+    def test_a_site_with_a_bad_measurement_is_flagged_as_a_poor_fit(self):
+        # seven good sites with 0.3 % noise and one whose file holds a flat 5 % (a bad
+        # measurement): its fit lands somewhere with a large residual, and must say so
+        rng = np.random.default_rng(3)
+        st = oxide_on_si()
+        sites = [measurement(airy_oxide_on_si(300.0 + i) + rng.normal(0, 0.003, WL.size),
+                             site=f"s{i}") for i in range(7)]
+        sites.append(measurement(np.full(WL.size, 0.05), site="bad"))
+        res = fit_map(model_from_stack(st), sites)
+        assert res.poor_fit.tolist() == [False] * 7 + [True]
+        assert any("poor fit" in w for w in res.warnings[7])
+        assert not any(res.warnings[i] for i in range(7))
+        assert res.as_dict()["n_poor_fit"] == 1
+
 
 class TestWarnings:
     def test_a_narrow_band_is_ambiguous(self):

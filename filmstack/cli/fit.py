@@ -117,7 +117,8 @@ def _map_table(result, model_path: Path, measured_path: Path):
                                 f"{100 * float(np.sqrt(np.nanmean(result.rms**2))):.3g} %"
                                 f"; non-uniformity = (max - min)/(2 mean); "
                                 f"{int(result.ambiguous.sum())} ambiguous site(s), "
-                                f"{int(result.at_bound.any(axis=1).sum())} on a bound."))
+                                f"{int(result.at_bound.any(axis=1).sum())} on a bound, "
+                                f"{int(result.poor_fit.sum())} poor fit(s)."))
     for j, name in enumerate(result.names):
         u = result.uniformity(name)
         se = result.stderr[:, j]

@@ -374,11 +374,37 @@ def fit_map(model: FitModel, measured: MeasuredSet | Sequence[Measurement], *,
                 break
         if interrupted:
             break
+    poor = _poor_fits(rms)
+    for i in np.nonzero(poor)[0]:
+        med = float(np.nanmedian(rms))
+        warnings[i] = list(warnings[i]) + [
+            f"poor fit: residual RMS {100 * rms[i]:.3g} % is {rms[i] / med:.0f} times the map's "
+            f"median ({100 * med:.3g} %); check this site's measurement, or whether the model "
+            "describes it"]
     x_mm = np.array([np.nan if m.x_mm is None else m.x_mm for m in sites], dtype=float)
     y_mm = np.array([np.nan if m.y_mm is None else m.y_mm for m in sites], dtype=float)
     return MapResult(
         names=model.names, units=[p.unit for p in model.parameters],
         site=[m.site for m in sites], x_mm=x_mm, y_mm=y_mm, values=values, stderr=stderr,
         rms=rms, chi2_reduced=chi2 if any_sigma else None, at_bound=at_bound,
-        ambiguous=ambiguous, warnings=warnings, interrupted=interrupted)
+        ambiguous=ambiguous, warnings=warnings, interrupted=interrupted, poor_fit=poor)
+
+
+#: A map site fits poorly when its residual RMS exceeds this many times the map's median ...
+POOR_FIT_FACTOR = 4.0
+#: ... and this absolute RMS (fraction), so a near-perfect map flags nothing for round-off.
+POOR_FIT_MIN_RMS = 0.002
+#: Sites needed for a median to compare with.
+POOR_FIT_MIN_SITES = 5
+
+
+def _poor_fits(rms: np.ndarray) -> np.ndarray:
+    """Sites (S,) bool whose residual RMS stands out from the rest of the map (common
+    practice, no published source: a robust outlier rule against the median)."""
+    ok = np.isfinite(rms)
+    if ok.sum() < POOR_FIT_MIN_SITES:
+        return np.zeros(rms.shape, dtype=bool)
+    med = float(np.median(rms[ok]))
+    with np.errstate(invalid="ignore"):
+        return ok & (rms > POOR_FIT_FACTOR * med) & (rms > POOR_FIT_MIN_RMS)
 

@@ -251,6 +251,10 @@ class MapResult:
         Per site, a list of messages.
     interrupted
         True if the fit was stopped early (Ctrl-C): values are the best so far.
+    poor_fit
+        (S,) bool: the site's residual RMS is far above the map's median (a bad measurement,
+        or the model does not describe that site); ``None`` means none flagged. The site's
+        values are still part of the uniformity figures: look at the site.
     """
 
     names: list[str]
@@ -266,6 +270,11 @@ class MapResult:
     ambiguous: np.ndarray
     warnings: list[list[str]] = field(default_factory=list)
     interrupted: bool = False
+    poor_fit: np.ndarray | None = None
+
+    def __post_init__(self):
+        if self.poor_fit is None:
+            self.poor_fit = np.zeros(len(self.site), dtype=bool)
 
     def __len__(self) -> int:
         return len(self.site)
@@ -306,4 +315,5 @@ class MapResult:
                 "rms": (float(np.sqrt(np.nanmean(self.rms**2)))
                         if np.isfinite(self.rms).any() else None),
                 "n_sites": len(self), "n_ambiguous": int(self.ambiguous.sum()),
+                "n_poor_fit": int(self.poor_fit.sum()),
                 "interrupted": self.interrupted, "sites": sites}

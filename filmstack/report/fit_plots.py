@@ -177,10 +177,11 @@ def plot_map(result, name: str | None = None, *, title: str | None = None,
         else:
             sc = ax.scatter(x[ok], y[ok], c=v[ok], cmap=cmap, vmin=vmin, vmax=vmax, s=40,
                             edgecolors="#2b2b2b", linewidths=0.4, zorder=3)
-        flagged = ok & (np.asarray(result.ambiguous) | np.asarray(result.at_bound).any(axis=1))
+        flagged = ok & (np.asarray(result.ambiguous) | np.asarray(result.at_bound).any(axis=1)
+                        | np.asarray(result.poor_fit))
         if flagged.any():
             ax.scatter(x[flagged], y[flagged], marker="x", s=30, c="#d1495b", zorder=4,
-                       label="ambiguous or on a bound")
+                       label="ambiguous, on a bound or poor fit")
             ax.legend(loc="upper right", fontsize=8)
         cb = fig.colorbar(mappable if mappable is not None else sc, ax=ax, shrink=0.85)
         cb.set_label(f"{name}" + (f" ({unit})" if unit else ""))
