@@ -11,6 +11,8 @@ import numpy as np
 import pytest
 
 from filmstack.design import Merit, synthesize
+from filmstack.design.needle import insert_needle, trim_layers
+from filmstack.design.refine import Clock, refine
 from filmstack.design.synthesis import start_design
 from filmstack.errors import InputError
 from filmstack.materials import Constant
@@ -177,4 +179,20 @@ def test_single_material_finds_the_quarter_wave_not_the_nearest_minimum():
     from filmstack.response import spectrum
     r_min = ((1.52 - 1.38 ** 2) / (1.52 + 1.38 ** 2)) ** 2
     assert spectrum(res.stack, wl).R[0, 0] == pytest.approx(r_min, abs=2e-3)
+
+
+def test_trim_removes_a_layer_that_does_not_earn_its_place(ar_result):
+    # a 6 nm layer of the other material in the middle of the thickest layer of a design that
+    # meets the spec: removing it again (and refining) gives a merit no higher, so it goes
+    merit = Merit.from_spec(ar_spec())
+    d = ar_result.design
+    i = int(np.argmax(d.d))
+    other = "H" if d.symbols[i] == "L" else "L"
+    padded = insert_needle(d, i, d.d[i] / 2, other, 6.0)
+    v = merit.value(padded)
+    seen = []
+    out, ov = trim_layers(merit, padded, v, refine=lambda x: refine(merit, x), clock=Clock(None),
+                          accept=lambda *a: seen.append(a[1]))
+    assert len(out) <= len(d) < len(padded)
+    assert ov <= v and seen and all(b <= a for a, b in zip([v] + seen, seen))
 

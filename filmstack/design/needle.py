@@ -72,7 +72,7 @@ from ..stack import Layer, qwot_to_nm
 from .layout import Design
 
 __all__ = ["NeedleScan", "needle_function", "insert_needle", "needle_optimise",
-           "gradual_evolution", "DEFAULT_PROBE_STEP_NM"]
+           "gradual_evolution", "trim_layers", "DEFAULT_PROBE_STEP_NM"]
 
 #: Default spacing of the probe depths (nm).
 DEFAULT_PROBE_STEP_NM = 2.0
@@ -534,3 +534,35 @@ def gradual_evolution(merit, design: Design, value: float, *, refine, clock, acc
             stale += 1
             if stale >= patience:
                 return best, best_val, f"{patience} growth steps without improvement"
+
+
+def trim_layers(merit, design: Design, value: float, *, refine, clock, accept, tries: int = 6):
+    """Remove layers that do not earn their place: the thinnest ``tries`` layers are tried one by
+    one — removed, their neighbours merged, the rest refined — and a removal is kept when the
+    merit does not rise; repeated until no removal is kept.
+
+    Needle optimisation adds a layer whenever that lowers the merit at all, and near the end
+    (especially on the total-thickness limit, where the attainable merit is set by the total
+    thickness) its last insertions gain little: a few thin layers that the refined stack no longer
+    needs. Removing them is free, and fewer and thicker layers are easier to make.
+
+    Returns (design, value).
+    """
+    problem = merit.problem
+    while len(design) > 1:
+        clock.check()
+        kept = False
+        for i in np.argsort(design.d, kind="stable")[:tries]:
+            i = int(i)
+            trial = Design(design.symbols[:i] + design.symbols[i + 1:],
+                           design.thicknesses_nm[:i] + design.thicknesses_nm[i + 1:]).merged()
+            t, tv = refine(trial)
+            if tv <= value and len(t) < len(design) and not problem.violations(t):
+                design, value = t, tv
+                accept(design, value, "trim")
+                kept = True
+                break
+        if not kept:
+            break
+    return design, value
+

@@ -11,7 +11,9 @@
    unmet and the limits leave room ("auto" strategy);
 4. a few seeded random restarts around the best design (each thickness scaled by a random factor
    of 1 ± 10 %, refined, kept only if better);
-5. a polish on the 4× finer sampling when a requirement fails there.
+5. trimming (:func:`~filmstack.design.needle.trim_layers`): the thinnest layers removed one by
+   one where the refined rest reaches a merit no higher;
+6. a polish on the 4× finer sampling when a requirement fails there.
 
 The best design that keeps every limit is kept throughout: the merit in ``history`` never rises,
 Ctrl-C (KeyboardInterrupt) or the time limit stop the search and return the best design so far.
@@ -29,7 +31,7 @@ from ..errors import InputError
 from ..stack import Stack, qwot_to_nm
 from .layout import Design, DesignProblem
 from .merit import Merit
-from .needle import DEFAULT_PROBE_STEP_NM, gradual_evolution, needle_optimise
+from .needle import DEFAULT_PROBE_STEP_NM, gradual_evolution, needle_optimise, trim_layers
 from .refine import Clock, TimeUp, refine
 
 __all__ = ["DesignResult", "synthesize", "start_design", "STRATEGIES"]
@@ -237,6 +239,9 @@ def synthesize(spec, *, seed: int = 0, time_limit_s: float | None = 60.0,
             t, tv = do_refine(trial)
             if tv < v:                      # history: improvements only
                 accept(t, tv, "restart")
+            d, v = state["design"], state["value"]
+        if strategy != "refine":
+            trim_layers(merit, d, v, refine=do_refine, clock=clock, accept=accept)
             d, v = state["design"], state["value"]
         if not message:
             message = "start design refined" if strategy == "refine" else "search finished"

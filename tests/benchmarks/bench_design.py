@@ -95,13 +95,15 @@ def main() -> int:
     t_needle = time.perf_counter() - t0
     mean_R, max_R = ar_figures(res.stack)
     print(f"   needle (from one {450:.0f} nm layer): mean R {100 * mean_R:.3f} %, max R "
-          f"{100 * max_R:.3f} %, {len(res.stack.layers)} layers, {res.stack.total_nm:.1f} nm, "
+          f"{100 * max_R:.3f} %, {len(res.stack.layers)} layers (thinnest "
+          f"{res.design.d.min():.1f} nm), {res.stack.total_nm:.1f} nm, "
           f"merit {res.merit:.4g}, {t_needle:.1f} s ({res.message})")
     bv, bd, starts, merit = multistart_lbfgs(ar_spec(), t_needle)
     if bd is not None:
         bm, bx = ar_figures(merit.problem.stack(bd))
         print(f"   baseline multi-start L-BFGS, same {t_needle:.1f} s, {starts} starts: mean R "
-              f"{100 * bm:.3f} %, max R {100 * bx:.3f} %, {len(bd)} layers, merit {bv:.4g}")
+              f"{100 * bm:.3f} %, max R {100 * bx:.3f} %, {len(bd)} layers (thinnest "
+              f"{bd.d.min():.1f} nm), merit {bv:.4g}")
     else:
         bm = np.inf
         print("   baseline found no design within the limits")
