@@ -66,7 +66,7 @@ __all__ = [
     "Material", "Constant", "Cauchy", "Sellmeier", "Tabulated", "DrudeLorentz", "TaucLorentz",
     "Combined", "MATERIAL_MODELS", "HC_EV_NM",
     "get_material", "list_materials", "material_from_spec", "material_from_mapping",
-    "load_material_file", "load_nk_csv", "library_folder",
+    "load_material_file", "load_nk_csv", "library_folder", "material_to_mapping",
     "cauchy_index", "sellmeier_n2", "drude_lorentz_epsilon", "tauc_lorentz_epsilon",
 ]
 
@@ -908,6 +908,75 @@ def _sample_check(mat: Material, ctx: _Ctx) -> None:
     if np.any(raw.imag < -1e-12):
         i = int(np.argmax(raw.imag < -1e-12))
         raise ctx.error(f"the model gives k < 0 at {wl[i]:.4g} nm; check its parameters", "")
+
+
+def _range_out(r) -> list:
+    return [float(r[0]), float(r[1])]
+
+
+def _model_mapping(m: Material) -> dict:
+    """The model keys of ``m`` in the material-file format (without name, source, notes)."""
+    if isinstance(m, Constant):
+        out: dict = {"model": "constant", "n": float(m.n)}
+        if m.k:
+            out["k"] = float(m.k)
+        if tuple(m.range_nm) != (0.0, math.inf):
+            out["range_nm"] = _range_out(m.range_nm)
+        return out
+    if isinstance(m, Cauchy):
+        out = {"model": "cauchy", "A": float(m.a)}
+        for key, v in (("B", m.b), ("C", m.c), ("k0", m.k0), ("edge_eV", m.edge_ev),
+                       ("urbach_eV", m.urbach_ev)):
+            if v:
+                out[key] = float(v)
+        out["range_nm"] = _range_out(m.range_nm)
+        return out
+    if isinstance(m, Sellmeier):
+        out = {"model": "sellmeier", "terms": [[float(b), float(c)] for b, c in m.terms]}
+        if m.a != 1.0:
+            out["a"] = float(m.a)
+        out["range_nm"] = _range_out(m.range_nm)
+        return out
+    if isinstance(m, Tabulated):
+        out = {"model": "table", "table": [[float(w), float(n), float(k)] for w, n, k
+                                           in zip(m.wavelength_nm, m.n, m.k)]}
+        if tuple(m.range_nm) != (m.wavelength_nm[0], m.wavelength_nm[-1]):
+            out["range_nm"] = _range_out(m.range_nm)
+        return out
+    if isinstance(m, DrudeLorentz):
+        return {"model": "drude-lorentz", "plasma_eV": float(m.plasma_ev),
+                "oscillators": [dict(zip(_DL_OSC_KEYS, map(float, o))) for o in m.oscillators],
+                "eps_inf": float(m.eps_inf), "range_nm": _range_out(m.range_nm)}
+    if isinstance(m, TaucLorentz):
+        return {"model": "tauc-lorentz", "Eg_eV": float(m.eg_ev),
+                "oscillators": [dict(zip(_TL_OSC_KEYS, map(float, o))) for o in m.oscillators],
+                "eps_inf": float(m.eps_inf), "range_nm": _range_out(m.range_nm)}
+    if isinstance(m, Combined):
+        parts = {}
+        for key, part in (("n", m.n_part), ("k", m.k_part)):
+            sub = _model_mapping(part)
+            if sub["model"] == "table" and "range_nm" not in sub:
+                sub["range_nm"] = _range_out(part.range_nm)
+            parts[key] = sub
+        return {"model": "combined", **parts, "range_nm": _range_out(m.range_nm)}
+    raise InputError(f"material '{m.name}': a {type(m).__name__} cannot be written as a "
+                     "material mapping")
+
+
+def material_to_mapping(m: Material) -> dict:
+    """``m`` as a mapping in the material-file format (the inverse of
+    :func:`material_from_mapping`): ``name`` and ``source`` unless they are ``"inline"``, then the
+    model and its parameters with full float precision, ``range_nm`` where it is not implied.
+
+    Raises InputError for a material class of another kind (not one of the models here).
+    """
+    out: dict = {}
+    if m.name != "inline":
+        out["name"] = m.name
+    if m.source and m.source != "inline":
+        out["source"] = m.source
+    out.update(_model_mapping(m))
+    return out
 
 
 def material_from_mapping(m: Mapping, *, file=None, lines=None, prefix: str = "",

@@ -403,6 +403,35 @@ class TestSave:
         assert "{fit: 120.0, min: 50.0, max: 300.0}" in text
         assert "qwot" not in text                # thicknesses always in nm
 
+    def test_inline_models_round_trip(self, tmp_path):
+        # every inline model a stack file may hold is written back inline and reads back equal
+        # (issue: saving a loaded stack and loading it again gives the same stack); model
+        # parameters are round numbers of our own, not data
+        text = textwrap.dedent("""\
+            substrate: {n: 1.52}
+            layers:
+              - {material: {cauchy: [2.2, 0.02]}, nm: 10}
+              - {material: {sellmeier: [[1.1, 0.01]], range_nm: [400, 900]}, nm: 20}
+              - material: {model: drude-lorentz, plasma_eV: 9.0, range_nm: [300, 1000],
+                           oscillators: [{f: 0.8, omega_eV: 0, gamma_eV: 0.05}]}
+                nm: 5
+              - material: {model: tauc-lorentz, Eg_eV: 3.2, range_nm: [250, 1500],
+                           oscillators: [{A_eV: 150, E0_eV: 4.5, C_eV: 1.5}], eps_inf: 2.0}
+                nm: 30
+              - {material: {model: table, table: [[400, 2.0, 0.1], [800, 1.9, 0]]}, nm: 7}
+              - material: {model: combined, range_nm: [400, 800],
+                           n: {model: cauchy, A: 1.45, range_nm: [300, 1000]},
+                           k: {model: table, columns: [wavelength_nm, k],
+                               table: [[400, 0.001], [800, 0]]}}
+                nm: 40
+            """)
+        s = load_stack(write(tmp_path, text))
+        out = tmp_path / "saved.yaml"
+        save_stack(s, out)
+        again = load_stack(out)
+        assert again == s
+        assert "cauchy" in out.read_text() and "tauc-lorentz" in out.read_text()
+
     def test_full_precision(self, tmp_path):
         d = [1 / 3, 2 ** -40, 123456.78901234567, 0.0]
         s = Stack(incident=AIR, substrate=FAKE["glass"],

@@ -51,7 +51,7 @@ from pathlib import Path
 import yaml
 
 from ..errors import InputError
-from ..materials import Constant, Material, material_from_spec
+from ..materials import Constant, Material, material_from_spec, material_to_mapping
 from ..notation import NotationError, check_symbol_name, notation_layers
 from ..stack import AIR, FreeParameter, Layer, Stack, qwot_to_nm
 from .yamlfile import join_key, line_of, load_yaml
@@ -523,6 +523,13 @@ class _Writer:
             if m.name != label:
                 out["name"] = m.name
             return out
+        if origin == "inline":       # an inline model ({cauchy: …}, {model: sellmeier, …})
+            try:
+                mapping = material_to_mapping(m)
+            except InputError:
+                return None
+            if self._lookup(mapping, m):
+                return mapping
         return None
 
     def material(self, m: Material, key: str):
