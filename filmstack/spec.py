@@ -74,6 +74,9 @@ __all__ = [
     "QUANTITIES", "parse_condition", "load_spec", "spec_from_mapping",
 ]
 
+#: Most sampling intervals of one band (``band / step_nm``); the design and check jobs also
+#: evaluate a grid four times finer, and every sample costs memory for every layer and angle.
+MAX_BAND_SAMPLES = 100_000
 #: The quantities a requirement may constrain, in the order they were introduced.
 QUANTITIES = ("R", "T", "A", "phase", "GD", "GDD", "colour")
 #: Quantities computed from the phase of r or t (need 's' or 'p').
@@ -745,6 +748,11 @@ def _parse_requirement(item, ctx, key):
     if "step_nm" in item:
         step = ctx.number(item["step_nm"], _join(key, "step_nm"), lo=0, lo_open=True,
                           what="a step in nm")
+        if (hi - lo) / step > MAX_BAND_SAMPLES:
+            raise ctx.error(_join(key, "step_nm"),
+                            f"step {step:g} nm samples the {hi - lo:g} nm band at more than "
+                            f"{MAX_BAND_SAMPLES:,} points: expected a step of at least "
+                            f"{(hi - lo) / MAX_BAND_SAMPLES:.3g} nm")
 
     angles = item.get("angles_deg", [0.0])
     akey = _join(key, "angles_deg")

@@ -210,10 +210,15 @@ class TestValidationMessages:
         # 16. negative tolerance percentage
         (_replace("thickness_pct: 1.0", "thickness_pct: -1"), "tolerances.thickness_pct", 22,
          ">= 0"),
+        # 17. a step so fine that the band would take gigabytes (1e-5 nm over 200 nm used
+        #     16 GB and ran for minutes in check)
+        (_replace("step_nm: 1e0", "step_nm: 1e-5"), "requirements[1].step_nm", 13,
+         "at least 0.002 nm"),
     ], ids=["top-key-typo", "requirement-key-typo", "condition-syntax", "percent-forgotten",
             "band-backwards", "grazing-angle", "polarization", "over", "negative-weight",
             "fractional-layers", "unknown-material-tolerance", "equal-without-tolerance",
-            "two-quantities", "band-missing", "start-symbol", "negative-tolerance"])
+            "two-quantities", "band-missing", "start-symbol", "negative-tolerance",
+            "step-too-fine"])
     def test_mistakes(self, tmp_path, text, key, line, words):
         e = _err(tmp_path, text)
         msg = str(e)
