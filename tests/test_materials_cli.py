@@ -111,6 +111,7 @@ def test_plot_writes_png(tmp_path):
     r = run("materials", "plot", "Ag", "--from", "400", "--to", "900", "--out", str(out))
     assert r.exit_code == 0, r.output
     assert out.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert r.stdout == f"wrote {out}\n"          # like every other command that writes files
 
 
 def test_plot_bad_suffix_writes_nothing(tmp_path):

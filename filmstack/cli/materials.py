@@ -193,7 +193,7 @@ def plot_command(
         write_bytes_atomic(path, content)
     else:
         write_text_atomic(path, content.decode("utf-8"))
-    typer.echo(f"wrote {path}", err=True)
+    typer.echo(f"wrote {path}")
 
 
 def _figure(m, wl, nk, fmt: str) -> bytes:
