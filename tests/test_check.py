@@ -144,6 +144,11 @@ class TestMonteCarlo:
         bad = monte_carlo(mirror(2), spec_of(self.SPEC_OK), trials=50, seed=1)
         assert bad.yield_ == 0.0 and bad.ci == (0.0, 0.0)
         assert np.ptp(bad.requirements[0].values) == 0.0       # every trial is the nominal
+        # a stack without layers has nothing to vary either (bare glass fails R >= 99 %)
+        bare = monte_carlo(Stack(incident=AIR, substrate=GLASS),
+                           spec_of(self.SPEC_OK, tolerances={"thickness_pct": 2}), trials=50,
+                           seed=1)
+        assert bare.yield_ == 0.0 and bare.ci == (0.0, 0.0)
 
     def test_single_layer_yield_is_analytic(self):
         # One quarter-wave layer (n1 = 1.38) on glass at 550 nm with R ≤ limit passes for a

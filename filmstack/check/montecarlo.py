@@ -256,10 +256,12 @@ def monte_carlo(stack, spec_or_requirements, *, trials: int, seed: int = 0,
     all_pass = np.logical_and.reduce(passes) if passes else np.ones(done, bool)
     k = int(all_pass.sum())
 
+    exact = tol.is_zero or d.shape[1] == 0
+
     def interval(k_pass):
         # without any error every trial is the nominal stack: the yield is known exactly
         # (1 or 0), not a binomial estimate
-        if tol.is_zero:
+        if exact:
             return (k_pass / done, k_pass / done)
         return clopper_pearson(k_pass, done, confidence)
 
@@ -271,6 +273,9 @@ def monte_carlo(stack, spec_or_requirements, *, trials: int, seed: int = 0,
             {q: float(x) for q, x in zip(PERCENTILES, np.percentile(v, PERCENTILES))},
             float(np.mean(v)), float(np.std(v, ddof=1)) if done > 1 else 0.0, v, p))
     notes = []
+    if d.shape[1] == 0 and not tol.is_zero:
+        notes.append("the stack has no layers: every trial is the nominal stack, and the yield "
+                     "is exact (no interval)")
     if tol.is_zero:
         notes.append("every tolerance is zero: every trial is the nominal stack, and the yield "
                      "is exact (no interval)")
