@@ -14,8 +14,10 @@ coating seen from inside (R_b, T_b):
 
 T_f is the same in both directions (reciprocity of transmittance between non-absorbing media).
 The sums are done per polarisation (s and p do not mix); unpolarised light averages after.
-The coatings' amplitudes are computed with the substrate's real index (the common practice for
-weakly absorbing substrates); its absorption enters through τ alone.
+The callers (:func:`filmstack.response.spectrum`) compute the coatings with the substrate's real
+index (the common practice for weakly absorbing substrates), its absorption entering through τ,
+except R_f, the light that never enters the substrate, which uses the complex index so that an
+opaque substrate reflects what a semi-infinite one does.
 
 References: Macleod, *Thin-Film Optical Filters*, 4th ed. (2010), §2.9 (incoherent reflection in
 a thick substrate); O. S. Heavens, *Optical Properties of Thin Solid Films* (1955), ch. 4.
