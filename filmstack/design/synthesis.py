@@ -4,8 +4,8 @@
 
 1. the start design (the spec's ``start`` notation, else one thick layer of the lowest-index
    allowed material: :data:`START_FRACTION` of the total-thickness limit, or
-   :data:`START_QWOT` quarter waves without one; with a single allowed material, the best
-   thickness of a scan of one layer), refined;
+   :data:`START_QWOT` quarter waves without one; with a single allowed material or a limit of
+   one free layer, the best material and thickness of a scan of one layer), refined;
 2. needle optimisation (:func:`~filmstack.design.needle.needle_optimise`);
 3. gradual evolution (:func:`~filmstack.design.needle.gradual_evolution`) when targets are still
    unmet and the limits leave room ("auto" strategy);
@@ -44,8 +44,8 @@ STRATEGIES = ("auto", "needle", "evolution", "refine")
 START_FRACTION = 0.75
 #: ... or, without a total limit, this many quarter waves at the reference wavelength.
 START_QWOT = 4.0
-#: With one allowed material, the single layer's thickness is scanned up to the total limit or
-#: this many quarter waves.
+#: With one allowed material or one free layer, the single layer's thickness is scanned up to
+#: the total limit or this many quarter waves.
 SINGLE_SCAN_QWOT = 8.0
 
 
@@ -126,24 +126,23 @@ def _fit_limits(problem: DesignProblem, design: Design) -> Design:
 
 
 def _best_single_layer(problem: DesignProblem, merit: Merit, clock: Clock) -> Design:
-    """With one allowed material every free design merges into one layer, so the search is one
-    thickness: the best of a scan (steps of 1/20 quarter wave at the reference wavelength, from
-    the thinnest limit to the total limit or :data:`SINGLE_SCAN_QWOT` quarter waves). The merit
-    has many local minima in that thickness (one per half wave), and a refinement from the
-    default thick start finds only the nearest."""
-    sym = next(iter(problem.materials))
-    qw = qwot_to_nm(1.0, problem.materials[sym], problem.template.reference_nm)
-    hi = problem.free_total_nm if problem.free_total_nm is not None else SINGLE_SCAN_QWOT * qw
-    lo = problem.thinnest_nm
-    if hi <= lo:
-        return Design((sym,), (lo,))
-    best = (np.inf, hi)
-    for d in np.linspace(lo, hi, max(2, int(np.ceil((hi - lo) / (qw / 20))) + 1)):
-        clock.check()
-        v = merit.value(Design((sym,), (float(d),)))
-        if v < best[0]:
-            best = (v, float(d))
-    return Design((sym,), (best[1],))
+    """With one allowed material, or room for one free layer, every free design is one layer,
+    so the search is one material and one thickness: the best of a scan of each material
+    (steps of 1/20 quarter wave at the reference wavelength, from the thinnest limit to the total
+    limit or :data:`SINGLE_SCAN_QWOT` quarter waves). The merit has many local minima in that
+    thickness (one per half wave), and a refinement from the default thick start finds only the
+    nearest."""
+    best = (np.inf, None)
+    for sym, mat in problem.materials.items():
+        qw = qwot_to_nm(1.0, mat, problem.template.reference_nm)
+        hi = problem.free_total_nm if problem.free_total_nm is not None else SINGLE_SCAN_QWOT * qw
+        lo = problem.thinnest_nm
+        for d in np.linspace(lo, max(hi, lo), max(2, int(np.ceil((hi - lo) / (qw / 20))) + 1)):
+            clock.check()
+            v = merit.value(Design((sym,), (float(d),)))
+            if v < best[0]:
+                best = (v, Design((sym,), (float(d),)))
+    return best[1]
 
 
 def synthesize(spec, *, seed: int = 0, time_limit_s: float | None = 60.0,
@@ -216,7 +215,8 @@ def synthesize(spec, *, seed: int = 0, time_limit_s: float | None = 60.0,
     try:
         if isinstance(start, Design):
             d0 = start
-        elif len(problem.materials) == 1 and start is None and not spec.start:
+        elif (len(problem.materials) == 1 or problem.free_max_layers == 1) and \
+                start is None and not spec.start:
             d0 = _best_single_layer(problem, merit, clock)
         else:
             d0 = start_design(problem, start if start is not None else spec.start)
@@ -237,7 +237,7 @@ def synthesize(spec, *, seed: int = 0, time_limit_s: float | None = 60.0,
             factors = 1.0 + 0.1 * rng.uniform(-1.0, 1.0, len(d))
             trial = _fit_limits(problem, d.with_d(d.d * factors))
             t, tv = do_refine(trial)
-            if tv < v:                      # history: improvements only
+            if tv < v * (1.0 - 1e-6):       # history: real improvements only
                 accept(t, tv, "restart")
             d, v = state["design"], state["value"]
         if strategy != "refine":
