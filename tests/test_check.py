@@ -210,7 +210,15 @@ class TestMonteCarlo:
         mc = monte_carlo(mirror(3), spec, trials=200, seed=2)
         r = mc.thicknesses_nm / mirror(3).thicknesses_nm
         assert np.std(r[:, 0]) > 0.03 and np.allclose(r[:, 1], 1.0)
-        assert not mc.notes
+        assert not any("matches no layer" in n for n in mc.notes)
+
+    def test_material_without_a_rate_error_is_noted(self):
+        # the spec gives a rate error for H only; the quote's L layers get none, and the user
+        # is told so rather than left to think every layer is covered
+        spec = spec_of(self.SPEC_OK, materials={"H": {"n": NH}, "L": {"n": NL}},
+                       tolerances={"rate_pct": {"H": 1}})
+        mc = monte_carlo(mirror(2), spec, trials=20, seed=1)
+        assert any("no rate error is given for L146" in n for n in mc.notes), mc.notes
 
     def test_stop_early_keeps_the_trials_done(self):
         spec = spec_of(self.SPEC_OK, tolerances={"thickness_pct": 2})

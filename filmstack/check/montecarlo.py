@@ -284,6 +284,14 @@ def monte_carlo(stack, spec_or_requirements, *, trials: int, seed: int = 0,
         for name, pct in table.items():
             if name != "*" and pct and name not in used:
                 notes.append(f"tolerances.{what} for '{name}' matches no layer of the stack")
+    # a rate error given per material but not for one the stack uses (an off-list material in a
+    # quote, say): its layers get thickness errors only — worth saying
+    if any(v for k, v in tol.rate_pct.items() if k != "*") and not tol.rate_pct.get("*"):
+        bare = sorted({l.material.name for l in stack.layers
+                       if not tol.rate_pct.get(aliases.get(l.material.name, l.material.name))})
+        if bare:
+            notes.append(f"no rate error is given for {', '.join(bare)}: its layers vary by the "
+                         f"random thickness error only")
     return YieldResult(k / done, interval(k), confidence, done,
                        int(trials), int(seed), tol, tuple(per), all_pass, d[:done],
                        None if scale is None else scale[:done], seconds,
