@@ -60,6 +60,7 @@ from pathlib import Path
 
 import numpy as np
 
+from ._interp import pchip_eval, pchip_slopes
 from .errors import ExtrapolationWarning, InputError, OutOfRangeError
 
 __all__ = [
@@ -411,24 +412,34 @@ def _as_float_tuple(values) -> tuple[float, ...]:
     return tuple(float(v) for v in np.asarray(values, dtype=float).ravel())
 
 
+#: Interpolations a table may ask for (``interpolation:`` in a material file).
+TABLE_INTERPOLATIONS = ("linear", "pchip")
+
+
 @dataclass(frozen=True, kw_only=True)
 class Tabulated(Material):
-    """Tabulated n, k, interpolated linearly in wavelength.
+    """Tabulated n, k, interpolated in wavelength: linearly, or by a monotone cubic.
 
-    Linear interpolation never overshoots: between two rows n and k stay between the two rows'
-    values (so k >= 0). Outside the table (only with ``extrapolate=True``) the end values are
+    Both interpolations never overshoot: between two rows n and k stay between the two rows'
+    values (so k >= 0). ``linear`` (the default, and the open database's convention) has a kink
+    at every row; ``pchip`` (monotone piecewise cubic, Fritsch & Carlson 1980) has a continuous
+    first derivative, for group delay and group-delay dispersion, which differentiate n(λ) and
+    would see each kink. Outside the table (only with ``extrapolate=True``) the end values are
     held constant. ``range_nm`` defaults to the table's span and must lie inside it.
 
     Attributes
     ----------
     wavelength_nm, n, k
         Columns of the table (tuples of floats, wavelengths strictly increasing, n > 0, k >= 0).
+    interpolation
+        ``"linear"`` or ``"pchip"``.
     """
 
     wavelength_nm: tuple[float, ...] = field(repr=False)
     n: tuple[float, ...] = field(repr=False)
     k: tuple[float, ...] = field(repr=False)
     range_nm: tuple[float, float] | None = None
+    interpolation: str = "linear"
 
     model = "table"
 
@@ -469,11 +480,20 @@ class Tabulated(Material):
             raise InputError(f"material '{self.name}': range_nm [{lo:g}, {hi:g}] reaches "
                              f"outside the table ({wl[0]:g} to {wl[-1]:g} nm)")
         object.__setattr__(self, "_arrays", (wl, n, k))
+        if self.interpolation not in TABLE_INTERPOLATIONS:
+            raise InputError(f"material '{self.name}': interpolation must be one of "
+                             f"{', '.join(TABLE_INTERPOLATIONS)}, got {self.interpolation!r}")
+        if self.interpolation == "pchip":
+            object.__setattr__(self, "_slopes", (pchip_slopes(wl, n), pchip_slopes(wl, k)))
 
     def _nk(self, wl):
         x, n, k = self._arrays
         flat = wl.ravel()
-        out = np.interp(flat, x, n) + 1j * np.maximum(np.interp(flat, x, k), 0.0)
+        if self.interpolation == "pchip":
+            mn, mk = self._slopes
+            out = pchip_eval(x, n, mn, flat) + 1j * np.maximum(pchip_eval(x, k, mk, flat), 0.0)
+        else:
+            out = np.interp(flat, x, n) + 1j * np.maximum(np.interp(flat, x, k), 0.0)
         return out.reshape(wl.shape)
 
 
@@ -615,7 +635,7 @@ _MODEL_KEYS: dict[str, tuple[tuple[str, ...], tuple[str, ...]]] = {
     "constant": (("n",), ("k",)),
     "cauchy": (("A",), ("B", "C", "k0", "edge_eV", "urbach_eV")),
     "sellmeier": (("terms",), ("a",)),
-    "table": (("table",), ("columns",)),
+    "table": (("table",), ("columns", "interpolation")),
     "drude-lorentz": (("plasma_eV", "oscillators"), ("eps_inf",)),
     "tauc-lorentz": (("Eg_eV", "oscillators"), ("eps_inf",)),
     "combined": (("n", "k"), ()),
@@ -829,7 +849,12 @@ def _model_part(m: Mapping, ctx: _Ctx, *, name: str, common: dict, what: str,
             if lo < wl[0] or hi > wl[-1]:
                 raise ctx.error(f"range_nm [{lo:g}, {hi:g}] reaches outside the table "
                                 f"({wl[0]:g} to {wl[-1]:g} nm)", "range_nm")
-        return Tabulated(name=name, wavelength_nm=tuple(wl), n=tuple(n), k=tuple(k), **kw)
+        interp = m.get("interpolation", "linear")
+        if interp not in TABLE_INTERPOLATIONS:
+            raise ctx.error(f"expected one of {', '.join(TABLE_INTERPOLATIONS)}, got {interp!r}",
+                            "interpolation")
+        return Tabulated(name=name, wavelength_nm=tuple(wl), n=tuple(n), k=tuple(k),
+                         interpolation=interp, **kw)
     if model == "drude-lorentz":
         osc = _oscillators(m["oscillators"], ctx, _DL_OSC_KEYS)
         for i, o in enumerate(osc):
@@ -940,6 +965,8 @@ def _model_mapping(m: Material) -> dict:
     if isinstance(m, Tabulated):
         out = {"model": "table", "table": [[float(w), float(n), float(k)] for w, n, k
                                            in zip(m.wavelength_nm, m.n, m.k)]}
+        if m.interpolation != "linear":
+            out["interpolation"] = m.interpolation
         if tuple(m.range_nm) != (m.wavelength_nm[0], m.wavelength_nm[-1]):
             out["range_nm"] = _range_out(m.range_nm)
         return out

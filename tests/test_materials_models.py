@@ -249,3 +249,37 @@ def test_materials_are_hashable_frozen_values():
     with pytest.raises(Exception):
         a.name = "u"
     assert math.isfinite(hash(malitson()))
+
+
+class TestTableInterpolationOption:
+    """`interpolation: pchip` for tables (monotone cubic, filmstack._interp)."""
+
+    ROWS = [[400.0, 1.50, 0.0], [450.0, 1.49, 0.0], [500.0, 1.485, 0.001], [600.0, 1.48, 0.0]]
+
+    def _load(self, extra):
+        from filmstack.materials import material_from_mapping
+        return material_from_mapping({"name": "t", "source": "test table (invented)",
+                                      "model": "table", "table": self.ROWS, **extra})
+
+    def test_pchip_passes_through_the_rows_and_differs_from_linear_between(self):
+        lin = self._load({})
+        cub = self._load({"interpolation": "pchip"})
+        rows = np.array([r[0] for r in self.ROWS])
+        np.testing.assert_allclose(cub.nk(rows), lin.nk(rows), atol=1e-15)
+        assert abs(cub.nk(np.array([425.0]))[0] - lin.nk(np.array([425.0]))[0]) > 1e-5
+
+    def test_pchip_k_stays_non_negative(self):
+        cub = self._load({"interpolation": "pchip"})
+        assert np.all(cub.nk(np.linspace(400, 600, 801)).imag >= 0)
+
+    def test_unknown_interpolation_names_the_key(self):
+        with pytest.raises(InputError, match=r"interpolation.*linear, pchip.*'cubic'"):
+            self._load({"interpolation": "cubic"})
+
+    def test_saved_and_loaded_keeps_the_interpolation(self):
+        from filmstack.materials import material_from_mapping, material_to_mapping
+        cub = self._load({"interpolation": "pchip"})
+        again = material_from_mapping({"name": "t", "source": "test table (invented)",
+                                       **material_to_mapping(cub)})
+        assert again.interpolation == "pchip"
+        np.testing.assert_allclose(again.nk(np.array([425.0])), cub.nk(np.array([425.0])))
