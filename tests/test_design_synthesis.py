@@ -10,7 +10,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from filmstack.design import Merit, synthesize
+from filmstack.design import Design, Merit, synthesize
 from filmstack.design.needle import insert_needle, trim_layers
 from filmstack.design.refine import Clock, refine
 from filmstack.design.synthesis import start_design
@@ -207,4 +207,25 @@ def test_one_free_layer_finds_the_best_material_and_thickness():
     res = synthesize(spec, seed=0, time_limit_s=20)
     assert res.design.symbols == ("L",)
     assert res.design.d[0] == pytest.approx(550 / (4 * 1.46), rel=0.1)
+
+
+def test_trim_drops_an_inert_bottom_layer():
+    # 900 nm of the low-index material on a substrate of the same index does nothing optically
+    # (a film matched to its substrate changes no reflection at any wavelength; Macleod,
+    # Thin-Film Optical Filters, 4th ed., ch. 2, characteristic matrix of a layer between equal
+    # media): the thick start layer's rest there used to stay (1.6 um of SiO2 on fused silica,
+    # 61 % of the 45-degree dichroic example)
+    sub = Constant(name="sub", n=1.46)
+    spec = Spec(template=Stack(AIR, sub, reference_nm=550), materials={"H": H, "L": L},
+                requirements=(Requirement("R", "<=", 0.02, (480, 620), step_nm=10,
+                                          over="every"),),
+                limits=Limits(total_nm=3000, thinnest_nm=5))
+    merit = Merit.from_spec(spec)
+    vcoat, v = refine(merit, Design(("H", "L"), (18.4, 121.0)))   # a V-coat meeting the spec
+    assert v == 0.0
+    padded = Design(("L", "H", "L"), (900.0,) + vcoat.thicknesses_nm)
+    assert merit.value(padded) == 0.0                  # the inert layer changes nothing
+    out, ov = trim_layers(merit, padded, 0.0, refine=lambda x: refine(merit, x),
+                          clock=Clock(None), accept=lambda *a: None)
+    assert ov == 0.0 and out.symbols == ("H", "L") and out.d.sum() < 200
 

@@ -30,8 +30,8 @@ design that meets its samples keeps a little room for the 4× finer re-evaluatio
 all quantities on one footing: :math:`s` = 0.01 for R, T, A (so *F* is in squared percentage
 points), 1° for phase, 1 fs for GD, 10 fs² for GDD; a ``=`` condition with a tolerance uses the
 tolerance as its scale. *F* = 0 exactly when every requirement holds (with its margin) at every
-sample. Requirements of weight 0 and colour requirements are not part of the merit (the check
-reports them).
+sample (values below ``MERIT_FLOOR`` = 1e-20, rounding noise, are taken as 0). Requirements of
+weight 0 and colour requirements are not part of the merit (the check reports them).
 
 The residual vector :math:`\mathbf r` (:math:`r_{ik} = \sqrt{w_i/(W N_i)}\, v_{ik}/s_i`) and its
 Jacobian with respect to the free thicknesses come from the engine's analytic derivatives
@@ -56,11 +56,17 @@ import numpy as np
 from ..errors import InputError
 from .layout import Design, DesignProblem
 
-__all__ = ["Merit", "Target", "QUANTITY_SCALE", "PHASE_STEP", "SPEED_OF_LIGHT_NM_PER_FS"]
+__all__ = ["Merit", "Target", "QUANTITY_SCALE", "PHASE_STEP", "SPEED_OF_LIGHT_NM_PER_FS",
+           "MERIT_FLOOR"]
 
 #: Scale of each quantity in the merit (internal units: fractions, rad, fs, fs²).
 QUANTITY_SCALE = {"R": 0.01, "T": 0.01, "A": 0.01, "phase": math.pi / 180.0, "GD": 1.0,
                   "GDD": 10.0}
+
+#: A merit below this is 0: it means violations of at most 1e-10 of a scale (1e-12 in R),
+#: below the engine's rounding, and a design that meets every target "with 4e-29 to spare" must
+#: not lose to one that meets them exactly (layer trimming compares merits).
+MERIT_FLOOR = 1e-20
 
 #: Relative step in angular frequency for GD and GDD by central differences of the phase.
 PHASE_STEP = 1e-3
@@ -70,6 +76,11 @@ SPEED_OF_LIGHT_NM_PER_FS = 299.792458
 
 _PHASE_QUANTITIES = ("phase", "GD", "GDD")
 _OFFSETS = (-2, -1, 0, 1, 2)          # ω(1 + kδ): five-point central differences
+
+
+def _floor(f: float) -> float:
+    """The merit with rounding noise removed: below :data:`MERIT_FLOOR` it is 0."""
+    return 0.0 if f < MERIT_FLOOR else f
 
 
 def _wrap(x):
@@ -267,9 +278,10 @@ class Merit:
         return self.evaluate(design, jacobian=False)[0]
 
     def value(self, design: Design) -> float:
-        """Merit F of ``design`` (dimensionless, ≥ 0; 0 when every target is met)."""
+        """Merit F of ``design`` (dimensionless, ≥ 0; 0 when every target is met; values below
+        :data:`MERIT_FLOOR` are 0)."""
         r = self.residuals(design)
-        return float(r @ r)
+        return _floor(float(r @ r))
 
     def residuals_jacobian(self, design: Design):
         """Residuals r (M,) and their Jacobian J (M, F) w.r.t. the free thicknesses (1/nm)."""
@@ -279,7 +291,7 @@ class Merit:
     def value_gradient(self, design: Design):
         """Merit F and its gradient dF/dd (F,) w.r.t. the free thicknesses (1/nm)."""
         r, dr = self.evaluate(design, jacobian=True)
-        return float(r @ r), 2.0 * dr @ r
+        return _floor(float(r @ r)), 2.0 * dr @ r
 
     def evaluate(self, design: Design, *, jacobian: bool = True, provider=None):
         """Residuals and their derivatives with respect to some parameters.

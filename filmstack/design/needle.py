@@ -537,14 +537,16 @@ def gradual_evolution(merit, design: Design, value: float, *, refine, clock, acc
 
 
 def trim_layers(merit, design: Design, value: float, *, refine, clock, accept, tries: int = 6):
-    """Remove layers that do not earn their place: the thinnest ``tries`` layers are tried one by
-    one — removed, their neighbours merged, the rest refined — and a removal is kept when the
-    merit does not rise; repeated until no removal is kept.
+    """Remove layers that do not earn their place: the thinnest ``tries`` layers and the bottom
+    layer are tried one by one — removed, their neighbours merged, the rest refined — and a
+    removal is kept when the merit does not rise; repeated until no removal is kept.
 
     Needle optimisation adds a layer whenever that lowers the merit at all, and near the end
     (especially on the total-thickness limit, where the attainable merit is set by the total
     thickness) its last insertions gain little: a few thin layers that the refined stack no longer
-    needs. Removing them is free, and fewer and thicker layers are easier to make.
+    needs. Removing them is free, and fewer and thicker layers are easier to make. The bottom
+    layer is what is left below the first needle of a thick start layer; when its material
+    matches the substrate (silica on fused silica) it does nothing but add thickness.
 
     Returns (design, value).
     """
@@ -552,8 +554,10 @@ def trim_layers(merit, design: Design, value: float, *, refine, clock, accept, t
     while len(design) > 1:
         clock.check()
         kept = False
-        for i in np.argsort(design.d, kind="stable")[:tries]:
-            i = int(i)
+        order = [int(i) for i in np.argsort(design.d, kind="stable")[:tries]]
+        if 0 not in order:
+            order.append(0)     # the rest of a thick start layer often ends up at the bottom
+        for i in order:
             trial = Design(design.symbols[:i] + design.symbols[i + 1:],
                            design.thicknesses_nm[:i] + design.thicknesses_nm[i + 1:]).merged()
             t, tv = refine(trial)
