@@ -512,6 +512,13 @@ def spec_from_mapping(data, file=None, lines=None) -> Spec:
         raise ctx.error("", "the spec is empty: expected a mapping with 'stack' and "
                             "'requirements'")
     ctx.mapping(data, "", "a mapping with 'stack' and 'requirements'")
+    if "requirements" not in data and "stack" not in data and \
+            ("layers" in data or "incident" in data or "substrate" in data):
+        raise ctx.error("", "this is a stack file (it has "
+                        + ", ".join(f"'{k}'" for k in ("incident", "substrate", "layers")
+                                    if k in data)
+                        + "), not a spec: a spec has 'stack' and 'requirements' — in "
+                          "'filmstack check STACK --spec SPEC' the quote comes first")
     ctx.known_keys(data, "", _TOP_KEYS, "the spec")
     for required in ("stack", "requirements"):
         if required not in data:

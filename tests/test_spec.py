@@ -248,6 +248,13 @@ class TestValidationMessages:
         assert e.value.key == "requirements[0].band_nm"
         assert "Ta2O5-test" in str(e.value) and "400–900" in str(e.value)
 
+    def test_a_stack_file_given_as_the_spec_says_so(self, tmp_path):
+        # the quote and the spec swapped on the command line used to give "unknown key
+        # 'incident' in the spec"
+        e = _err(tmp_path, "incident: air\nsubstrate: {n: 1.52}\nlayers:\n"
+                           "  - {material: {n: 1.38}, nm: 99.6}\n")
+        assert "this is a stack file" in str(e) and "quote comes first" in str(e)
+
     def test_empty_file(self, tmp_path):
         e = _err(tmp_path, "")
         assert "empty" in str(e)
