@@ -229,3 +229,23 @@ def test_trim_drops_an_inert_bottom_layer():
                           clock=Clock(None), accept=lambda *a: None)
     assert ov == 0.0 and out.symbols == ("H", "L") and out.d.sum() < 200
 
+
+def test_refinement_is_not_stalled_by_an_inert_layer():
+    # A layer of the substrate's own index has a Jacobian column of rounding noise. With
+    # scipy's unfloored x_scale='jac' its scale was 1e16: the trust region went along it (the
+    # layer wandered from 60 to 850 nm) and the two working layers did not move (merit 5.5).
+    # The same two layers without it refine to 0.13; with the inert layer they must too.
+    # (Inertness of an index-matched film: Macleod, Thin-Film Optical Filters, 4th ed., ch. 2.)
+    from filmstack.design.refine import refine_thicknesses
+
+    sub = Constant(name="sub", n=1.46)
+    spec = Spec(template=Stack(AIR, sub, reference_nm=550), materials={"H": H, "L": L},
+                requirements=(Requirement("R", "<=", 0.02, (480, 620), step_nm=10,
+                                          over="every"),),
+                limits=Limits(total_nm=3000, thinnest_nm=5))
+    merit = Merit.from_spec(spec)
+    _, alone = refine_thicknesses(merit, Design(("H", "L"), (100.0, 95.0)))
+    out, padded = refine_thicknesses(merit, Design(("L", "H", "L"), (60.0, 100.0, 95.0)))
+    assert alone < 1.0
+    assert padded == pytest.approx(alone, rel=1e-3)
+
