@@ -50,12 +50,12 @@ def _fmt(x: float, digits: int = 4) -> str:
     return f"{x:.{digits}g}"
 
 
-def _display(req, value) -> str:
+def _display(req, value, *, signed: bool = False) -> str:
     v = float(np.asarray(req.to_display(value)))
     if not math.isfinite(v):
         return "-"
     unit = req.unit.strip()
-    return f"{v:.4g}" + (f" {unit}" if unit else "")
+    return (f"{v:+.4g}" if signed else f"{v:.4g}") + (f" {unit}" if unit else "")
 
 
 def layer_rows(result) -> list[dict]:
@@ -259,8 +259,8 @@ def _print_tables(result, rows, coarse, fine, spec_file: Path) -> None:
     for i, (c, f) in enumerate(zip(coarse, fine)):
         req = c.requirement
         rt.add_row(str(i + 1), _short(req), _where(req), _display(req, c.value),
-                   _display(req, c.margin), "pass" if bool(np.asarray(c.passed)) else "FAIL",
-                   _display(req, f.value), _display(req, f.margin),
+                   _display(req, c.margin, signed=True), "pass" if bool(np.asarray(c.passed)) else "FAIL",
+                   _display(req, f.value), _display(req, f.margin, signed=True),
                    "pass" if bool(np.asarray(f.passed)) else "FAIL")
     skipped = ", ".join(r.key for r, _ in result.skipped)
     cap = ("Value: band mean at the worst angle (avg) or the worst sample (every); margin >= 0 "
