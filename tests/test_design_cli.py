@@ -204,3 +204,21 @@ class TestInterrupt:
         assert proc.returncode in (0, 1), stderr
         assert "stopped on request" in stdout
         assert out.is_file() and len(load_stack(out).layers) >= 1
+
+
+def test_map_labels_requirements_sharing_a_box_once():
+    # s and p of a 45-degree beam splitter on the same band: one outline, one joined label
+    # (two labels drawn on the same spot were unreadable)
+    from filmstack.materials import Constant
+    from filmstack.report.design_plots import plot_reflectance_map
+    from filmstack.spec import Requirement
+    from filmstack.stack import AIR, Layer, Stack
+
+    st = Stack(AIR, Constant(name="glass", n=1.52), (Layer(Constant(name="H", n=2.35), 60.0),))
+    reqs = [Requirement("R", "=", 0.5, (500, 600), tolerance=0.03, angles_deg=(45.0,),
+                        polarization=p, over="every") for p in ("s", "p")]
+    _, ax = plot_reflectance_map(st, np.linspace(480, 620, 15), np.linspace(0, 60, 7), "s",
+                                 requirements=reqs)
+    labels = [t.get_text() for t in ax.texts]
+    assert len(labels) == 1 and "(p)" in labels[0] and ";" in labels[0]
+    assert len(ax.patches) == 1

@@ -235,15 +235,20 @@ def plot_reflectance_map(stack, wavelengths_nm, angles_deg, polarization: str = 
         cb = fig.colorbar(im, ax=ax, pad=0.01, extend=extend)
         cb.set_label(f"{'Reflectance R' if quantity == 'R' else 'Transmittance T'} (%), "
                      f"{polarization}")
+        # one outline and one label per box: requirements on the same band and angles (s and p
+        # of a beam splitter, say) share it, their labels joined (drawn apart they overlapped)
+        boxes: dict = {}
         for r in requirements:
             if r.quantity not in ("R", "T", "A"):
                 continue
-            a0, a1 = min(r.angles_deg), max(r.angles_deg)
-            lo, hi = r.band_nm
+            box = (*map(float, r.band_nm), min(r.angles_deg), max(r.angles_deg))
+            cond = r.text or f"{r.op} {float(r.to_display(r.limit)):g}%"
+            pol = f" ({r.polarization})" if r.polarization != polarization else ""
+            boxes.setdefault(box, []).append(f"{r.quantity} {cond}{pol}")
+        for (lo, hi, a0, a1), labels in boxes.items():
             ax.add_patch(Rectangle((lo, a0 - 1.0), max(hi - lo, 1.0), (a1 - a0) + 2.0,
                                    fill=False, ec="#7fd1ff", lw=1.4, ls=(0, (4, 2))))
-            cond = r.text or f"{r.op} {float(r.to_display(r.limit)):g}%"
-            ax.annotate(f"{r.quantity} {cond}", (lo, a1 + 1.0), xytext=(2, 2),
+            ax.annotate("; ".join(dict.fromkeys(labels)), (lo, a1 + 1.0), xytext=(2, 2),
                         textcoords="offset points", fontsize=7.5, color="#7fd1ff",
                         ha="left", va="bottom",
                         path_effects=[patheffects.withStroke(linewidth=2, foreground="#1a1a1a")])
