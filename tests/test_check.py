@@ -238,3 +238,17 @@ class TestCompare:
         assert shifted.summary["R"]["max_abs_diff"] > 1e-3
         assert np.all(shifted.delta_e > 0)
         assert shifted.to_dict()["requirements"][0]["pass_a"] is True
+
+
+def test_spectra_plot_labels_a_shared_limit_once():
+    # s and p required to the same '= 50 % ± 3 %' on one band: one line, one label '1, 2: …'
+    # (the two labels overprinted each other)
+    from filmstack.report.check_plots import plot_check_spectra
+    from filmstack.spec import Requirement
+
+    reqs = [Requirement("R", "=", 0.5, (500, 600), tolerance=0.03, angles_deg=(45.0,),
+                        polarization=p, over="every") for p in ("s", "p")]
+    fig, axes = plot_check_spectra(mirror(2), reqs)
+    ax = axes[0] if isinstance(axes, (list, tuple, np.ndarray)) else axes
+    labels = [t.get_text() for t in ax.texts if "50" in t.get_text()]
+    assert len(labels) == 1 and labels[0].startswith("1, 2:")

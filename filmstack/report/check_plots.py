@@ -186,8 +186,16 @@ def plot_check_spectra(stack, requirements, *, check=None, mc=None, wavelengths_
             ax.set_xlim(wl[0], wl[-1])
             ax.set_ylim(lo - pad if q not in ("R", "T", "A") or lo - pad > 0 else 0.0,
                         hi + pad if q not in ("R", "T", "A") else min(hi + pad, 100.5))
+            # requirements drawn as the same line (s and p of a beam splitter with one limit)
+            # get one line and one label "1, 2: ..." (two labels overprinted each other)
+            drawn: dict = {}
             for r in qreqs:
-                _draw_limit(ax, r, _QSCALE[q], reqs_all.index(r) + 1, failed=r.key in failed)
+                shape = (tuple(map(float, r.band_nm)), r.op, r.limit, r.tolerance, r.over)
+                drawn.setdefault(shape, []).append(r)
+            for group in drawn.values():
+                _draw_limit(ax, group[0], _QSCALE[q],
+                            ", ".join(str(reqs_all.index(r) + 1) for r in group),
+                            failed=any(r.key in failed for r in group))
             ax.set_ylabel(_QLABEL[q])
             handles, labels = ax.get_legend_handles_labels()
             if env_d is not None and q in ("R", "T", "A"):
