@@ -252,3 +252,4 @@ def test_spectra_plot_labels_a_shared_limit_once():
     ax = axes[0] if isinstance(axes, (list, tuple, np.ndarray)) else axes
     labels = [t.get_text() for t in ax.texts if "50" in t.get_text()]
     assert len(labels) == 1 and labels[0].startswith("1, 2:")
+    assert "± 3%" in labels[0]                  # the tolerance with its unit

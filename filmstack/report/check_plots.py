@@ -69,7 +69,7 @@ def _draw_limit(ax, req, scale, number, failed=False):
     what = "avg " if average else ""
     text = f"{number}: {what}{req.op} {req.to_display(req.limit):g}{req.unit}"
     if req.op == "=":
-        text += f" ± {req.to_display(req.tolerance):g}"
+        text += f" ± {req.to_display(req.tolerance):g}{req.unit}"
     ax.annotate(text + ("  FAIL" if failed else ""), (hi, lim), xytext=(3, 2),
                 textcoords="offset points", fontsize=7.5, color=colour, ha="left",
                 va="bottom", zorder=7, annotation_clip=False)
