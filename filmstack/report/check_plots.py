@@ -16,7 +16,7 @@ from __future__ import annotations
 import numpy as np
 
 from .spectrum_plot import (DPI, LINESTYLES, PALETTE, WIDTH_IN, _STYLE, add_caption,
-                            band_wavelengths)
+                            add_titles, band_wavelengths)
 
 __all__ = ["plot_check_spectra", "plot_yield", "plot_sensitivity", "check_wavelengths",
            "ENVELOPE_TRIALS"]
@@ -74,14 +74,6 @@ def _draw_limit(ax, req, scale, number, failed=False):
                 textcoords="offset points", fontsize=7.5, color=colour, ha="left",
                 va="bottom", zorder=7, annotation_clip=False)
     ax.set_ylim(y0, y1)
-
-
-def _titles(ax, title, subtitle):
-    if title:
-        ax.set_title(title, pad=16 if subtitle else 6)
-    if subtitle:
-        ax.text(0.0, 1.015, subtitle, transform=ax.transAxes, ha="left", va="bottom",
-                fontsize=8.5, color="#6b6b6b")
 
 
 def plot_check_spectra(stack, requirements, *, check=None, mc=None, wavelengths_nm=None,
@@ -206,7 +198,7 @@ def plot_check_spectra(stack, requirements, *, check=None, mc=None, wavelengths_
             ax.legend(handles, labels, loc="upper left", bbox_to_anchor=(1.1, 1.0),
                       title="angle  polarisation", title_fontsize=8, borderaxespad=0.0)
         axes[-1].set_xlabel("Wavelength (nm, vacuum)")
-        _titles(axes[0], title, subtitle)
+        add_titles(axes[0], title, subtitle)
         add_caption(fig, caption)
     return fig, axes
 
@@ -259,7 +251,7 @@ def plot_yield(mc, *, title=None, subtitle=None, caption=None):
         ax.set_xlabel(f"Trials passing (%), {mc.trials} trials, seed {mc.seed}; bars: "
                       f"{mc.confidence * 100:g} % interval (Clopper–Pearson)")
         ax.grid(axis="y", visible=False)
-        _titles(ax, title, subtitle)
+        add_titles(ax, title, subtitle)
         add_caption(fig, caption)
     return fig, ax
 
@@ -309,6 +301,6 @@ def plot_sensitivity(sens, stack, *, title=None, subtitle=None, caption=None):
                     va="center", fontsize=7.5, color="#4a4a4a")
         cb = fig.colorbar(im, ax=ax, shrink=0.9, pad=0.12)
         cb.set_label("value change for +1 % thickness\n(each row / its scale)", fontsize=8)
-        _titles(ax, title, subtitle)
+        add_titles(ax, title, subtitle)
         add_caption(fig, caption)
     return fig, ax

@@ -14,7 +14,7 @@ from __future__ import annotations
 import numpy as np
 
 from .spectrum_plot import (DPI, LINESTYLES, PALETTE, WIDTH_IN, _STYLE, add_caption,
-                            band_wavelengths)
+                            add_titles, band_wavelengths)
 
 __all__ = ["plot_design_spectra", "plot_reflectance_map", "plot_index_profile",
            "plot_merit_history", "design_wavelengths"]
@@ -150,11 +150,7 @@ def plot_design_spectra(stack, requirements, *, wavelengths_nm=None, title=None,
             ax.legend(loc="best", title="angle  polarisation", title_fontsize=8,
                       ncols=1 if len(curves) <= 5 else 2)
         axes[-1].set_xlabel("Wavelength (nm, vacuum)")
-        if title:
-            axes[0].set_title(title, pad=16 if subtitle else 6)
-        if subtitle:
-            axes[0].text(0.0, 1.015, subtitle, transform=axes[0].transAxes, ha="left",
-                         va="bottom", fontsize=8.5, color="#6b6b6b")
+        add_titles(axes[0], title, subtitle)
         add_caption(fig, caption)
     return fig, axes
 

@@ -153,13 +153,18 @@ def plot_spectrum(spectra, quantities: Sequence[str] = ("R", "T"), *, title: str
         handles, labels = axes[0].get_legend_handles_labels()
         axes[0].legend(handles, labels, title="angle  polarisation", loc="best",
                        ncols=1 if n_curves <= 6 else 2, title_fontsize=8.5)
-        if title:
-            axes[0].set_title(title, pad=16 if subtitle else 6)
-        if subtitle:
-            axes[0].text(0.0, 1.015, subtitle, transform=axes[0].transAxes, ha="left",
-                         va="bottom", fontsize=8.5, color="#6b6b6b")
+        add_titles(axes[0], title, subtitle)
         add_caption(fig, caption)
     return fig, (axes[0] if len(axes) == 1 else axes)
+
+
+def add_titles(ax, title, subtitle):
+    """A bold title over ``ax`` and, under it, a grey subtitle line (either may be empty)."""
+    if title:
+        ax.set_title(title, pad=16 if subtitle else 6)
+    if subtitle:
+        ax.text(0.0, 1.015, subtitle, transform=ax.transAxes, ha="left", va="bottom",
+                fontsize=8.5, color="#6b6b6b")
 
 
 def add_caption(fig, caption):
