@@ -40,7 +40,7 @@ from ._common import (EXIT_INPUT, EXIT_INTERNAL, EXIT_INTERRUPTED, EXIT_OK, EXIT
 
 __all__ = ["app", "main"]
 
-_COMMAND_MODULES = ("spectrum", "materials", "colour", "design", "check", "fit")
+_COMMAND_MODULES = ("spectrum", "field", "materials", "colour", "design", "check", "fit")
 
 _PROG = "filmstack"
 
