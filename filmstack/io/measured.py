@@ -201,6 +201,9 @@ _POL_NAMES = {"polarization", "polarisation", "pol"}
 _SITE_NAMES = {"site", "site_id", "site id"}
 _X_NAMES = {"x_mm", "x", "x (mm)", "x [mm]"}
 _Y_NAMES = {"y_mm", "y", "y (mm)", "y [mm]"}
+#: Columns that are not values, by role (first match wins).
+_ROLE_NAMES = (("angle", _ANGLE_NAMES), ("polarization", _POL_NAMES), ("site", _SITE_NAMES),
+               ("x", _X_NAMES), ("y", _Y_NAMES))
 _VALUE_RE = re.compile(r"^(r|t|reflectance|transmittance)(?:[_\s]?(s|p|mean))?$")
 _SIGMA_RE = re.compile(r"^(?:(?:sigma|u|uncertainty)(?:[_\s]?(r|t)(?:[_\s]?(s|p|mean))?)?"
                        r"|(r|t)(?:[_\s]?(s|p|mean))?[_\s](?:sigma|u|uncertainty))$")
@@ -257,20 +260,9 @@ def _parse_header(names: list[str], file: str, line: int) -> _Columns:
         if _WAVELENGTH_OTHER_UNIT.match(n):
             raise InputError(f"column '{raw}': wavelengths must be given in nm "
                              "(name the column wavelength_nm)", file=file, line=line)
-        if n in _ANGLE_NAMES:
-            put("angle", i)
-            continue
-        if n in _POL_NAMES:
-            put("polarization", i)
-            continue
-        if n in _SITE_NAMES:
-            put("site", i)
-            continue
-        if n in _X_NAMES:
-            put("x", i)
-            continue
-        if n in _Y_NAMES:
-            put("y", i)
+        role = next((r for r, names in _ROLE_NAMES if n in names), None)
+        if role is not None:
+            put(role, i)
             continue
         base, pct = _strip_pct(n)
         m = _VALUE_RE.match(base)
